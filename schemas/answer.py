@@ -1,0 +1,98 @@
+"""Answers: what /v1/solve returns, what /v1/verify reads and what it returns."""
+
+from __future__ import annotations
+
+from marshmallow import Schema, fields, validate
+
+from schemas.problem import ProblemSchema
+from schemas.tables import MAX_ANSWER_VALUE, IdList, Number, NumberMap, RecordList
+
+SHAPES = ("assignment", "transportation", "transshipment")
+SOLVERS = ("linear_sum_assignment", "min_weight_full_bipartite_matching", "min_cost_flow")
+
+
+class AllocationRowSchema(Schema):
+    """Units sent along one arc; ``cost`` is flow x the arc's cost as given."""
+
+    from_ = fields.String(required=True, data_key="from")
+    to = fields.String(required=True)
+    flow = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
+    cost = fields.Float(metadata={"bound": MAX_ANSWER_VALUE})
+    arc = fields.Integer(metadata={"description": "index into the request's arcs"})
+
+
+class AmountSchema(Schema):
+    """Units of one sink left unmet, or of one source left unused."""
+
+    id = fields.String(required=True)
+    amount = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
+
+
+class VirtualPotentialsSchema(Schema):
+    """Potentials of the three virtual nodes of the extended network."""
+
+    super_source = Number(required=True, bound=MAX_ANSWER_VALUE)
+    super_sink = Number(required=True, bound=MAX_ANSWER_VALUE)
+    hard_pool = Number(required=True, bound=MAX_ANSWER_VALUE)
+
+
+class CutSchema(Schema):
+    """A cut proving that no flow leaves less hard demand unmet than ``hard_shortfall``."""
+
+    sink_side = IdList(required=True, metadata={"description": "ids on the sink side"})
+    sinks = IdList(load_default=list, metadata={"description": "hard sinks on the sink side"})
+    demand = Number(kind="count", load_default=0, bound=MAX_ANSWER_VALUE)
+    capacity = Number(kind="count", load_default=0, bound=MAX_ANSWER_VALUE)
+
+
+class CertificateSchema(Schema):
+    """Dual potentials and the cut; see README, 'The certificate'."""
+
+    negated = fields.Boolean(required=True)
+    potentials = NumberMap(required=True)
+    virtual_potentials = fields.Nested(VirtualPotentialsSchema, required=True)
+    hard_shortfall = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
+    cut = fields.Nested(CutSchema, required=True)
+    dual_objective = Number(required=True, bound=MAX_ANSWER_VALUE)
+
+
+class AnswerSchema(Schema):
+    """An answer to check: as returned by /v1/solve, or produced by anyone else."""
+
+    status = fields.String(validate=validate.Equal("optimal"))
+    shape = fields.String(validate=validate.OneOf(SHAPES))
+    solver = fields.String(validate=validate.OneOf(SOLVERS))
+    objective = Number(required=True, bound=MAX_ANSWER_VALUE)
+    flow_value = Number(kind="count", bound=MAX_ANSWER_VALUE)
+    allocation = RecordList(AllocationRowSchema, required=True)
+    unmet = RecordList(AmountSchema, required=True)
+    unused = RecordList(AmountSchema, required=True)
+    certificate = fields.Nested(CertificateSchema, required=True)
+
+
+class SolveResultSchema(AnswerSchema):
+    """The 200 answer of /v1/solve."""
+
+    status = fields.String(required=True, validate=validate.Equal("optimal"))
+    shape = fields.String(required=True, validate=validate.OneOf(SHAPES))
+    solver = fields.String(required=True, validate=validate.OneOf(SOLVERS))
+    flow_value = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
+
+
+class VerifyRequestSchema(ProblemSchema):
+    """A problem plus the answer to check."""
+
+    answer = fields.Nested(AnswerSchema, required=True)
+
+
+class CheckSchema(Schema):
+    name = fields.String(required=True)
+    passed = fields.Boolean(required=True)
+    detail = fields.String(required=True)
+
+
+class VerifyResultSchema(Schema):
+    """The 200 answer of /v1/verify."""
+
+    valid = fields.Boolean(required=True)
+    checks = fields.List(fields.Nested(CheckSchema), required=True)

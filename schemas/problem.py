@@ -1,0 +1,68 @@
+"""The problem a caller sends: sources, sinks, optional nodes, and costs or arcs."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
+
+from schemas.tables import CostMatrix, RecordList
+
+OBJECTIVES = ("min", "max")
+UNMET_POLICIES = ("minimize", "reject")
+
+
+class SourceSchema(Schema):
+    """A source: a technician's free slots, a warehouse's stock."""
+
+    id = fields.String(required=True)
+    supply = fields.Integer(load_default=1, metadata={"description": "units it can send at most"})
+
+
+class SinkSchema(Schema):
+    """A sink: a ticket, a store; demand is hard unless a penalty per unmet unit is given."""
+
+    id = fields.String(required=True)
+    demand = fields.Integer(load_default=1)
+    penalty = fields.Float(metadata={"description": "cost of each unit left unmet"})
+
+
+class NodeSchema(Schema):
+    """A transshipment node (depot, hub): what enters leaves."""
+
+    id = fields.String(required=True)
+
+
+class ArcSchema(Schema):
+    """A directed arc between any two distinct ids; no capacity means unbounded."""
+
+    from_ = fields.String(required=True, data_key="from")
+    to = fields.String(required=True)
+    cost = fields.Float(required=True)
+    capacity = fields.Integer(allow_none=True)
+
+
+class ProblemSchema(Schema):
+    """A whole problem; exactly one of ``costs`` and ``arcs``."""
+
+    class Meta:
+        unknown = RAISE
+
+    sources = RecordList(SourceSchema, required=True)
+    sinks = RecordList(SinkSchema, required=True)
+    nodes = RecordList(NodeSchema)
+    costs = CostMatrix()
+    arcs = RecordList(ArcSchema)
+    objective = fields.String(load_default="min", validate=validate.OneOf(OBJECTIVES))
+    unmet_demand = fields.String(load_default="minimize",
+                                 validate=validate.OneOf(UNMET_POLICIES))
+
+    @validates_schema(pass_original=True, skip_on_field_errors=False)
+    def _one_cost_form(self, data: dict[str, Any], original: Any, **kwargs: Any) -> None:
+        given = set(original) if isinstance(original, dict) else set()
+        if "costs" in given and "arcs" in given:
+            raise ValidationError("give either costs or arcs, not both", "arcs")
+        if not given & {"costs", "arcs"}:
+            raise ValidationError("give costs (a matrix) or arcs (a list)", "costs")
+        if "nodes" in given and "arcs" not in given:
+            raise ValidationError("nodes need arcs to reach them", "nodes")

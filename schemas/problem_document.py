@@ -1,0 +1,37 @@
+"""RFC 9457 problem document, the body of every error answer."""
+
+from __future__ import annotations
+
+from marshmallow import Schema, fields
+
+
+class FieldErrorSchema(Schema):
+    pointer = fields.String(required=True, metadata={"description": "RFC 6901 JSON Pointer"})
+    detail = fields.String(required=True)
+
+
+class WitnessArcSchema(Schema):
+    from_ = fields.String(required=True, data_key="from")
+    to = fields.String(required=True)
+    capacity = fields.Integer(required=True)
+
+
+class WitnessSchema(Schema):
+    """Hard sinks that need more than can reach them, and what limits them."""
+
+    sinks = fields.List(fields.String(), required=True)
+    sources = fields.List(fields.String(), required=True)
+    arcs = fields.List(fields.Nested(WitnessArcSchema), required=True)
+    demand = fields.Integer(required=True)
+    capacity = fields.Integer(required=True)
+    shortfall = fields.Integer(required=True)
+
+
+class ProblemDocumentSchema(Schema):
+    type = fields.String(required=True)
+    title = fields.String(required=True)
+    status = fields.Integer(required=True)
+    detail = fields.String(required=True)
+    errors = fields.List(fields.Nested(FieldErrorSchema))
+    witness = fields.Nested(WitnessSchema)
+    cycle = fields.List(fields.String())

@@ -1,0 +1,51 @@
+"""The Flask application factory: ``gunicorn 'service.app:create_app()'``."""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Mapping
+from typing import Any
+
+from flask import Flask
+from werkzeug.exceptions import HTTPException
+
+from service.api import bp, json_response
+from service.errors import PROBLEM_CONTENT_TYPE, ServiceError, problem_document
+from service.settings import load_settings
+
+log = logging.getLogger(__name__)
+
+
+def create_app(config: Mapping[str, Any] | None = None) -> Flask:
+    """Build the app; ``config`` overrides settings (``MAX_ARCS``...) and Flask options."""
+    app = Flask(__name__)
+    settings = load_settings(config)
+    app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
+    if config:
+        app.config.update({k: v for k, v in config.items() if k.isupper()})
+    app.extensions["certimatch.settings"] = settings
+    app.register_blueprint(bp)
+
+    @app.errorhandler(ServiceError)
+    def _service_error(e: ServiceError) -> Any:
+        if e.status >= 500:
+            log.error("%s: %s", e.title, e.detail)
+        return json_response(e.problem(), e.status, PROBLEM_CONTENT_TYPE)
+
+    @app.errorhandler(HTTPException)
+    def _http_error(e: HTTPException) -> Any:
+        status = e.code or 500
+        doc = problem_document(status, e.name, e.description or e.name)
+        response = json_response(doc, status, PROBLEM_CONTENT_TYPE)
+        if status == 405 and e.get_response().headers.get("Allow"):
+            response.headers["Allow"] = e.get_response().headers["Allow"]
+        return response
+
+    @app.errorhandler(Exception)
+    def _unexpected(e: Exception) -> Any:
+        log.exception("unexpected error")
+        doc = problem_document(500, "Internal error", "the service failed unexpectedly; "
+                               "the error is logged", "internal-error")
+        return json_response(doc, 500, PROBLEM_CONTENT_TYPE)
+
+    return app

@@ -1,0 +1,75 @@
+"""Pick an engine by the shape of the problem, run the two stages, return the flows.
+
+* assignment (every supply and demand 1, no nodes, source->sink arcs, at most one arc per
+  pair, no capacity but 1, no penalty): linear_sum_assignment on a dense matrix, or
+  min_weight_full_bipartite_matching when sparse (arcs, or a matrix more than half null);
+  when no matching covers the smaller side, min-cost flow instead.
+* transportation (source->sink arcs only) and transshipment (anything else): stage 1
+  (maximum flow into the hard sinks) then stage 2 (min-cost flow).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from service.engines import dense_assignment, min_cost_flow, sparse_assignment
+from service.feasibility import (
+    Shortfall,
+    check_bounded,
+    least_shortfall,
+    reject_if_short,
+    shortfall_of_matching,
+)
+from service.network import Network
+
+#: A cost matrix with at least this share of allowed cells goes to the dense engine.
+DENSE_SHARE = 0.5
+
+
+@dataclass(frozen=True)
+class Solution:
+    """Flows on the user arcs, with the stage-1 shortfall and who produced them."""
+
+    shape: str
+    solver: str
+    flow: np.ndarray
+    shortfall: Shortfall
+
+
+def shape_of(net: Network) -> str:
+    """'assignment', 'transportation' or 'transshipment' (see module docstring)."""
+    bipartite = (net.n_nodes == 0 and bool(np.all(net.tail < net.n_sources))
+                 and bool(np.all(net.head >= net.sink_offset)))
+    if not bipartite:
+        return "transshipment"
+    unit = (bool(np.all(net.supply == 1)) and bool(np.all(net.demand == 1))
+            and not net.soft.any() and bool(np.all(net.capacity[net.bounded] == 1)))
+    if unit and (net.from_matrix or _pairs_unique(net)):
+        return "assignment"
+    return "transportation"
+
+
+def _pairs_unique(net: Network) -> bool:
+    keys = net.tail * net.n_user + net.head
+    return len(np.unique(keys)) == len(keys)
+
+
+def solve(net: Network) -> Solution:
+    """Solve ``net``: raises Unbounded, or Infeasible when unmet hard demand is rejected."""
+    check_bounded(net)
+    shape = shape_of(net)
+    if shape == "assignment":
+        cells = net.n_sources * net.n_sinks
+        dense = net.from_matrix and net.n_arcs >= DENSE_SHARE * cells
+        engine = dense_assignment if dense else sparse_assignment
+        flow = engine.solve(net)
+        if flow is not None:
+            shortfall = shortfall_of_matching(net, int(flow.sum()))
+            reject_if_short(net, shortfall)
+            return Solution(shape, engine.NAME, flow, shortfall)
+    shortfall = least_shortfall(net)
+    reject_if_short(net, shortfall)
+    return Solution(shape, min_cost_flow.NAME, min_cost_flow.solve(net, shortfall.amount),
+                    shortfall)

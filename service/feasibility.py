@@ -1,0 +1,126 @@
+"""What can be routed at all: unbounded cycles, and the least possible hard shortfall.
+
+Stage 1 of the solve (README, "How a problem is solved"): a maximum flow from the sources
+into the hard sinks. Its value fixes ``H``, the least total hard demand any flow must leave
+unmet, and its minimum cut is the proof of ``H`` (Gale's feasibility theorem / max-flow
+min-cut): the hard sinks on the sink side need more than the arcs into that side carry.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from ortools.graph.python import max_flow
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
+
+from service.errors import Infeasible, OutOfRange, Unbounded
+from service.network import Network
+from service.paths import bellman_ford, cycle_through_pred
+
+__all__ = ["Shortfall", "check_bounded", "least_shortfall", "shortfall_of_matching",
+           "witness"]
+
+
+@dataclass(frozen=True)
+class Shortfall:
+    """Least total unmet hard demand ``amount`` and its proof, a mask of the sink side."""
+
+    amount: int
+    sink_side: np.ndarray    # bool per user node
+
+
+def check_bounded(net: Network) -> None:
+    """Raise Unbounded naming a negative-cost cycle made only of unbounded arcs."""
+    free = ~net.bounded
+    if not (free & (net.min_cost < 0)).any():
+        return
+    tail, head, cost = net.tail[free], net.head[free], net.min_cost[free]
+    graph = coo_matrix((np.ones(len(tail)), (tail, head)), shape=(net.n_user, net.n_user))
+    _, label = connected_components(graph, directed=True, connection="strong")
+    inside = label[tail] == label[head]          # arcs that can lie on a cycle
+    if not (inside & (cost < 0)).any():
+        return
+    arcs = np.flatnonzero(inside)
+    paths = bellman_ford(net.n_user, tail[arcs], head[arcs], cost[arcs], want_pred=True)
+    if paths.converged:
+        return
+    cycle = cycle_through_pred(paths, tail[arcs])
+    names = [net.ids[int(tail[arcs[a]])] for a in cycle]
+    total = int(cost[arcs[cycle]].sum()) * net.sign
+    raise Unbounded(
+        f"the cycle {' -> '.join(names + names[:1])} has unbounded capacity and "
+        f"{'total score' if net.maximize else 'total cost'} {total / net.cost_scale:g} "
+        f"per unit, so the {'score grows' if net.maximize else 'cost falls'} without limit",
+        cycle=names)
+
+
+def shortfall_of_matching(net: Network, matched: int) -> Shortfall:
+    """The proof for an assignment whose matching covers the smaller side.
+
+    With ``n`` unit sources and ``m`` unit hard sinks, at most ``n`` sinks can be served:
+    put every user node on the sink side; the cut is the ``n`` supply arcs.
+    """
+    short = net.n_sinks - matched
+    side = np.ones(net.n_user, bool) if short > 0 else np.zeros(net.n_user, bool)
+    return Shortfall(short, side)
+
+
+def least_shortfall(net: Network) -> Shortfall:
+    """Maximum flow into the hard sinks; its value gives the least hard shortfall."""
+    hard = np.flatnonzero(~net.soft)
+    hard_demand = int(net.demand[hard].sum())
+    if hard_demand == 0:
+        return Shortfall(0, np.zeros(net.n_user, bool))
+    n = net.n_user
+    S, T = n, n + 1
+    off = net.sink_offset
+    src = np.arange(net.n_sources)
+    tails = np.concatenate([np.full(len(src), S), net.tail, hard + off])
+    heads = np.concatenate([src, net.head, np.full(len(hard), T)])
+    caps = np.concatenate([net.supply,
+                           np.where(net.bounded, net.capacity, net.unbounded_capacity()),
+                           net.demand[hard]])
+    solver = max_flow.SimpleMaxFlow()
+    solver.add_arcs_with_capacity(tails.astype(np.int32), heads.astype(np.int32),
+                                  caps.astype(np.int64))
+    status = solver.solve(S, T)
+    if status != solver.OPTIMAL:
+        raise OutOfRange(f"the maximum-flow stage could not run ({status.name}); "
+                       "reduce capacities or supplies")
+    amount = hard_demand - int(solver.optimal_flow())
+    side = np.zeros(n, bool)
+    if amount > 0:
+        side[:] = True
+        reach = np.asarray(solver.get_source_side_min_cut(), dtype=np.int64)
+        side[reach[reach < n]] = False
+    return Shortfall(amount, side)
+
+
+def witness(net: Network, shortfall: Shortfall) -> dict:
+    """What a dispatcher can act on: the short sinks, what limits them, by how much."""
+    side = shortfall.sink_side
+    off = net.sink_offset
+    sinks = np.flatnonzero(side[off:] & ~net.soft)
+    sources = np.flatnonzero(side[: net.n_sources])
+    crossing = np.flatnonzero(~side[net.tail] & side[net.head])
+    return {
+        "sinks": [net.ids[off + int(i)] for i in sinks],
+        "sources": [net.ids[int(i)] for i in sources],
+        "arcs": [{"from": net.ids[int(net.tail[a])], "to": net.ids[int(net.head[a])],
+                  "capacity": int(net.capacity[a])} for a in crossing],
+        "demand": int(net.demand[sinks].sum()),
+        "capacity": int(net.supply[sources].sum() + net.capacity[crossing].sum()),
+        "shortfall": shortfall.amount,
+    }
+
+
+def reject_if_short(net: Network, shortfall: Shortfall) -> None:
+    """With ``unmet_demand: "reject"``, any hard shortfall is an error carrying the witness."""
+    if net.reject_unmet and shortfall.amount > 0:
+        w = witness(net, shortfall)
+        raise Infeasible(
+            f"{len(w['sinks'])} hard sinks need {w['demand']} units but the sources and arcs "
+            f"that can reach them carry at most {w['capacity']}: {w['shortfall']} short",
+            witness=w)

@@ -1,0 +1,67 @@
+"""Solve and verify without HTTP: body dict in, answer dict out.
+
+request -> schema -> network model -> dispatcher/engine -> certificate -> answer, and the
+answer is loaded back through the verify schema and checked by the independent verifier
+before it may leave. Flask never appears below this module.
+"""
+
+from __future__ import annotations
+
+import logging
+from typing import Any
+
+from marshmallow import ValidationError
+
+from schemas import AnswerSchema, ProblemSchema, VerifyRequestSchema, to_pointers
+from service import dispatch
+from service.answer import build_answer
+from service.certificate import certify
+from service.errors import CertificateFailure, InvalidProblem
+from service.network import Network, build_network
+from service.settings import Settings
+from service.verify import verify_answer
+
+log = logging.getLogger(__name__)
+
+_problem_schema = ProblemSchema()
+_answer_schema = AnswerSchema()
+_verify_schema = VerifyRequestSchema()
+
+
+def _load(schema: Any, body: Any) -> dict[str, Any]:
+    try:
+        return schema.load(body)
+    except ValidationError as e:
+        raise InvalidProblem(to_pointers(e.messages)) from None
+
+
+def solve_body(body: Any, settings: Settings) -> dict[str, Any]:
+    """The 200 answer for a problem, or a ServiceError."""
+    net = build_network(_load(_problem_schema, body), settings)
+    solution = dispatch.solve(net)
+    answer = build_answer(net, solution, certify(net, solution))
+    self_check(net, answer)
+    return answer
+
+
+def self_check(net: Network, answer: dict[str, Any]) -> None:
+    """Refuse to let an answer leave unless the independent verifier accepts it."""
+    try:
+        loaded = _answer_schema.load(answer)
+    except ValidationError as e:
+        log.error("answer does not match its own schema: %s", e.messages)
+        raise CertificateFailure("the answer does not match its own schema") from None
+    result = verify_answer(net, loaded)
+    if not result["valid"]:
+        failed = [c for c in result["checks"] if not c["passed"]]
+        log.error("self-check failed: %s", failed)
+        raise CertificateFailure(
+            "the answer failed its own check: "
+            + "; ".join(f"{c['name']}: {c['detail']}" for c in failed), checks=failed)
+
+
+def verify_body(body: Any, settings: Settings) -> dict[str, Any]:
+    """``{"valid", "checks"}`` for a problem plus an answer."""
+    data = _load(_verify_schema, body)
+    answer = data.pop("answer")
+    return verify_answer(build_network(data, settings), answer)

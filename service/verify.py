@@ -1,0 +1,334 @@
+"""The independent checker: is this answer an optimal solution of this problem?
+
+It reads the problem and the answer only, shares no code with the engines or the
+certifier, and follows the definitions (README, "The certificate"):
+
+* the allocation is a flow: allowed arcs, within capacity, conserved at nodes, within
+  supply at sources, within demand at sinks; unmet, unused and objective as reported;
+* the cut proves that no flow leaves less hard demand unmet (max-flow min-cut);
+* the potentials prove that no flow with that shortfall costs less: by weak duality
+  ``D (pi(S) - pi(T)) - sum_a u_a max(0, -c^pi_a)`` is a lower bound on every flow's cost
+  when no unbounded arc has a negative reduced cost, and here it equals the cost.
+
+All arithmetic is exact on integers (costs scaled as in the network model); a reported
+fractional value is compared after scaling with the relative tolerance FLOAT_TOLERANCE.
+"""
+
+from __future__ import annotations
+
+from itertools import repeat
+from typing import Any
+
+import numpy as np
+
+from service.network import Network
+
+__all__ = ["FLOAT_TOLERANCE", "verify_answer"]
+
+#: Relative tolerance for reported fractional values (objective, dual objective, row cost)
+#: against their exact recomputation.
+FLOAT_TOLERANCE = 1e-9
+
+_VIRTUAL = ("super_source", "super_sink", "hard_pool")
+_INT64_SAFE = 2.0**62
+
+
+class _Checks:
+    def __init__(self) -> None:
+        self.items: list[dict[str, Any]] = []
+
+    def add(self, name: str, bad: str | None, ok_detail: str) -> bool:
+        self.items.append({"name": name, "passed": bad is None,
+                           "detail": ok_detail if bad is None else bad})
+        return bad is None
+
+    def skip(self, names: list[str], why: str) -> None:
+        for name in names:
+            self.add(name, f"not checked: {why}", "")
+
+
+def _close(reported: float, exact_scaled: int, scale: int) -> bool:
+    if scale == 1 and float(reported).is_integer():
+        return int(reported) == exact_scaled
+    gap = abs(reported * scale - exact_scaled)
+    return gap <= max(0.5, FLOAT_TOLERANCE * abs(exact_scaled))
+
+
+def _dot(a: np.ndarray, b: np.ndarray) -> int:
+    """Exact sum of products of two integer arrays, whatever their size."""
+    bound = float(np.abs(a).astype(np.float64) @ np.abs(b).astype(np.float64)) if len(a) else 0
+    if bound < _INT64_SAFE:
+        return int(np.asarray(a, np.int64) @ np.asarray(b, np.int64))
+    return int(np.asarray(a, object) @ np.asarray(b, object))
+
+
+def _to_grid(values: np.ndarray, scale: int) -> np.ndarray | None:
+    """Reported numbers as integers of the cost grid; None when out of 64-bit range."""
+    scaled = np.rint(np.asarray(values, np.float64) * scale)
+    if len(scaled) and np.abs(scaled).max() >= _INT64_SAFE / 4:
+        return None
+    return scaled.astype(np.int64)
+
+
+def _ids_to_index(names: list[str], index: dict[str, int]) -> np.ndarray:
+    return np.fromiter(map(index.get, names, repeat(-1)), np.int64, count=len(names))
+
+
+def _first(mask: np.ndarray) -> int | None:
+    hits = np.flatnonzero(mask)
+    return int(hits[0]) if len(hits) else None
+
+
+def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
+    """Check ``answer`` (loaded by AnswerSchema) against ``net``; ``{"valid", "checks"}``."""
+    checks = _Checks()
+    ids = net.ids
+    index = {id_: i for i, id_ in enumerate(ids)}
+    scale = net.cost_scale
+    cert = answer["certificate"]
+    checks.add("sense", None if cert["negated"] == net.maximize else
+               f"negated is {cert['negated']} but the objective is "
+               f"{'max' if net.maximize else 'min'}",
+               "certificate is for the min form" + (" with costs negated" if net.maximize
+                                                    else ""))
+
+    flow = _arc_flows(net, answer["allocation"], index, checks)
+    if flow is None:
+        checks.skip(["capacity", "conservation", "supply", "demand", "unused", "unmet",
+                     "objective", "hard_shortfall", "shortfall_cut", "potentials",
+                     "dual_feasibility", "complementary_slackness", "dual_objective"],
+                    "the allocation does not name allowed arcs")
+        return _result(checks)
+
+    # -- primal feasibility -------------------------------------------------------------
+    over = _first(net.bounded & (flow > net.capacity))
+    checks.add("capacity", None if over is None else
+               f"arc {ids[net.tail[over]]} -> {ids[net.head[over]]} carries {flow[over]} "
+               f"over its capacity {net.capacity[over]}", "every arc within its capacity")
+    net_out = np.zeros(net.n_user, np.int64)
+    np.add.at(net_out, net.tail, flow)
+    np.subtract.at(net_out, net.head, flow)
+    off = net.sink_offset
+    sent = net_out[: net.n_sources]
+    through = net_out[net.n_sources: off]
+    received = -net_out[off:]
+    leak = _first(through != 0)
+    checks.add("conservation", None if leak is None else
+               f"node {ids[net.n_sources + leak]} has net outflow {through[leak]}",
+               "what enters each node leaves it")
+    bad = _first((sent < 0) | (sent > net.supply))
+    checks.add("supply", None if bad is None else
+               f"source {ids[bad]} sends {sent[bad]}, allowed 0 to {net.supply[bad]}",
+               "each source sends between 0 and its supply")
+    bad = _first((received < 0) | (received > net.demand))
+    checks.add("demand", None if bad is None else
+               f"sink {ids[off + bad]} receives {received[bad]}, allowed 0 to "
+               f"{net.demand[bad]}", "each sink receives between 0 and its demand")
+    unused = net.supply - sent
+    unmet = net.demand - received
+    checks.add("unused", _amounts_differ(answer["unused"], unused, ids, index, 0,
+                                         net.n_sources, "source"),
+               "unused supply as reported")
+    checks.add("unmet", _amounts_differ(answer["unmet"], unmet, ids, index, off,
+                                        net.n_sinks, "sink"),
+               "unmet demand as reported")
+    if "flow_value" in answer:
+        routed = int(sent.sum())
+        checks.add("flow_value", None if answer["flow_value"] == routed else
+                   f"flow_value is {answer['flow_value']}, the allocation routes {routed}",
+                   "flow_value as routed")
+    primal = _dot(net.min_cost, flow) + _dot(net.penalty[net.soft], unmet[net.soft])
+    sign = -1 if net.maximize else 1
+    checks.add("objective", None if _close(answer["objective"], sign * primal, scale) else
+               f"objective is {answer['objective']}, recomputed {sign * primal / scale:g}",
+               f"objective recomputed: {sign * primal / scale:g}")
+
+    # -- least hard shortfall: the cut --------------------------------------------------
+    shortfall = cert["hard_shortfall"]
+    hard_unmet = int(unmet[~net.soft].sum())
+    checks.add("hard_shortfall", None if hard_unmet == shortfall else
+               f"hard demand left unmet is {hard_unmet}, the certificate says {shortfall}",
+               f"{shortfall} units of hard demand unmet")
+    checks.add("shortfall_cut", _cut_differs(net, cert["cut"], index, shortfall),
+               f"no flow can leave less than {shortfall} units of hard demand unmet")
+
+    # -- least cost: the potentials -----------------------------------------------------
+    keys, values = cert["potentials"]
+    where = _ids_to_index(keys, index)
+    vp = cert["virtual_potentials"]
+    grid = _to_grid(np.append(values, [vp[name] for name in _VIRTUAL]), scale)
+    missing = [i for i in ids if i not in set(keys)] if len(set(keys)) != len(ids) else []
+    if (where < 0).any() or missing or grid is None:
+        checks.add("potentials", f"potentials missing for {missing[:5]}" if missing else
+                   f"potential for unknown id {keys[_first(where < 0) or 0]!r}"
+                   if (where < 0).any() else "potentials beyond 64-bit range", "")
+        checks.skip(["dual_feasibility", "complementary_slackness", "dual_objective"],
+                    "potentials incomplete")
+        return _result(checks)
+    checks.add("potentials", None, "one potential per source, sink and node")
+    S, T, P = net.n_user, net.n_user + 1, net.n_user + 2
+    pi = np.zeros(net.n_user + 3, np.int64)
+    pi[where] = grid[: len(keys)]
+    pi[[S, T, P]] = grid[len(keys):]
+
+    arcs = _extended_arcs(net, flow, unmet, sent, shortfall, S, T, P)
+    tail, head, cost, cap, x, names = arcs
+    reduced = cost - pi[tail] + pi[head]
+    unbounded = cap < 0
+    bad = _first(unbounded & (reduced < 0))
+    checks.add("dual_feasibility", None if bad is None else
+               f"unbounded arc {names(bad)} has negative reduced cost {reduced[bad] / scale:g}",
+               "no unbounded arc has a negative reduced cost")
+    bad = _first(((reduced > 0) & (x > 0)) | ((reduced < 0) & ~unbounded & (x < cap)))
+    checks.add("complementary_slackness", None if bad is None else
+               f"arc {names(bad)} has reduced cost {reduced[bad] / scale:g} and flow {x[bad]}"
+               f" of capacity {'unbounded' if cap[bad] < 0 else cap[bad]}",
+               "positive reduced cost: no flow; negative: at capacity")
+    demand = int(net.demand.sum())
+    finite = ~unbounded
+    dual = demand * int(pi[S] - pi[T]) - _dot(cap[finite], np.maximum(0, -reduced[finite]))
+    reported_dual = cert["dual_objective"]
+    if dual != primal:
+        bad_dual = f"dual objective {sign * dual / scale:g} differs from the cost " \
+                   f"{sign * primal / scale:g}"
+    elif not _close(reported_dual, sign * dual, scale):
+        bad_dual = f"dual_objective is {reported_dual}, recomputed {sign * dual / scale:g}"
+    else:
+        bad_dual = None
+    checks.add("dual_objective", bad_dual, "dual objective equals the objective")
+    return _result(checks)
+
+
+def _result(checks: _Checks) -> dict[str, Any]:
+    return {"valid": all(c["passed"] for c in checks.items), "checks": checks.items}
+
+
+def _arc_flows(net: Network, rows: Any, index: dict[str, int], checks: _Checks
+               ) -> np.ndarray | None:
+    """Flow per arc of the network from the allocation rows, or None (check failed)."""
+    n = len(rows)
+    tails = _ids_to_index(rows.columns["from"], index)
+    heads = _ids_to_index(rows.columns["to"], index)
+    unknown = _first((tails < 0) | (heads < 0))
+    if unknown is not None:
+        checks.add("allocation_arcs", f"allocation row {unknown} names an unknown id", "")
+        return None
+    arc_given = rows.present.get("arc", np.zeros(n, bool))
+    arc = np.full(n, -1, np.int64)
+    if arc_given.any():
+        if net.from_matrix:
+            checks.add("allocation_arcs", "allocation rows carry 'arc' but the problem "
+                       "gives a cost matrix", "")
+            return None
+        arc[arc_given] = rows.columns["arc"][arc_given]
+        wrong = _first(arc_given & ((arc >= net.n_arcs) |
+                                    (net.tail[np.minimum(arc, net.n_arcs - 1)] != tails) |
+                                    (net.head[np.minimum(arc, net.n_arcs - 1)] != heads)))
+        if wrong is not None:
+            checks.add("allocation_arcs", f"allocation row {wrong}: arc {arc[wrong]} does "
+                       f"not join {rows.columns['from'][wrong]} to {rows.columns['to'][wrong]}",
+                       "")
+            return None
+    keys = net.tail * net.n_user + net.head
+    order = np.argsort(keys, kind="stable")
+    sorted_keys = keys[order]
+    want = tails * net.n_user + heads
+    lo = np.searchsorted(sorted_keys, want, "left")
+    hi = np.searchsorted(sorted_keys, want, "right")
+    lookup = ~arc_given
+    missing = _first(lookup & (lo == hi))
+    if missing is not None:
+        checks.add("allocation_arcs", f"allocation row {missing}: no allowed arc "
+                   f"{rows.columns['from'][missing]} -> {rows.columns['to'][missing]}", "")
+        return None
+    ambiguous = _first(lookup & (hi - lo > 1))
+    if ambiguous is not None:
+        checks.add("allocation_arcs", f"allocation row {ambiguous}: several arcs join "
+                   "this pair; give the arc index in 'arc'", "")
+        return None
+    arc[lookup] = order[lo[lookup]]
+    if len(np.unique(arc)) != n:
+        checks.add("allocation_arcs", "an arc appears in more than one allocation row", "")
+        return None
+    checks.add("allocation_arcs", None, "every row names one allowed arc")
+    flow = np.zeros(net.n_arcs, np.int64)
+    flow[arc] = rows.columns["flow"]
+    if "cost" in rows.present:
+        given = rows.present["cost"]
+        exact = flow[arc] * net.cost[arc]
+        off = [i for i in np.flatnonzero(given).tolist()
+               if not _close(float(rows.columns["cost"][i]), int(exact[i]), net.cost_scale)]
+        checks.add("allocation_costs", None if not off else
+                   f"allocation row {off[0]}: cost {rows.columns['cost'][off[0]]}, flow x "
+                   f"arc cost is {exact[off[0]] / net.cost_scale:g}",
+                   "row costs are flow x arc cost")
+    return flow
+
+
+def _amounts_differ(rows: Any, actual: np.ndarray, ids: list[str], index: dict[str, int],
+                    start: int, count: int, kind: str) -> str | None:
+    where = _ids_to_index(rows.columns["id"], index) - start
+    stray = _first((where < 0) | (where >= count))
+    if stray is not None:
+        return f"{rows.columns['id'][stray]!r} is not a {kind}"
+    reported = np.zeros(count, np.int64)
+    np.add.at(reported, where, rows.columns["amount"])
+    bad = _first(reported != actual)
+    if bad is None:
+        return None
+    return f"{kind} {ids[start + bad]}: reported {reported[bad]}, actual {actual[bad]}"
+
+
+def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
+                 shortfall: int) -> str | None:
+    side = np.zeros(net.n_user, bool)
+    for id_ in cut["sink_side"]:
+        if id_ not in index:
+            return f"the cut names unknown id {id_!r}"
+        side[index[id_]] = True
+    off = net.sink_offset
+    hard_in = side[off:] & ~net.soft
+    demand = int(net.demand[hard_in].sum())
+    crossing = ~side[net.tail] & side[net.head]
+    open_arc = _first(crossing & ~net.bounded)
+    if open_arc is not None:
+        return (f"unbounded arc {net.ids[net.tail[open_arc]]} -> "
+                f"{net.ids[net.head[open_arc]]} crosses the cut")
+    capacity = int(net.supply[side[: net.n_sources]].sum() + net.capacity[crossing].sum())
+    if demand - capacity != shortfall:
+        return (f"hard sinks on the sink side need {demand}, arcs into it carry {capacity}: "
+                f"that proves {max(0, demand - capacity)} short, not {shortfall}")
+    return None
+
+
+def _extended_arcs(net: Network, flow: np.ndarray, unmet: np.ndarray, sent: np.ndarray,
+                   shortfall: int, S: int, T: int, P: int) -> tuple:
+    """Arcs of the extended network: (tail, head, min-form cost, capacity, flow, namer).
+
+    Capacity -1 means unbounded.
+    """
+    off = net.sink_offset
+    src = np.arange(net.n_sources)
+    snk = np.arange(net.n_sinks)
+    soft, hard = snk[net.soft], snk[~net.soft]
+    zeros = np.zeros
+    blocks = [
+        (net.tail, net.head, net.sign * net.cost,
+         np.where(net.bounded, net.capacity, -1), flow),
+        (np.full(len(src), S), src, zeros(len(src), np.int64), net.supply, sent),
+        (snk + off, np.full(len(snk), T), zeros(len(snk), np.int64), net.demand,
+         net.demand),
+        (np.full(len(soft), S), soft + off, net.penalty[soft], net.demand[soft],
+         unmet[soft]),
+        (np.array([S]), np.array([P]), zeros(1, np.int64), np.array([shortfall]),
+         np.array([int(unmet[hard].sum())])),
+        (np.full(len(hard), P), hard + off, zeros(len(hard), np.int64), net.demand[hard],
+         unmet[hard]),
+    ]
+    cols = [np.concatenate([np.asarray(b[k], np.int64) for b in blocks]) for k in range(5)]
+    labels = list(net.ids) + list(_VIRTUAL)
+
+    def names(a: int) -> str:
+        return f"{labels[cols[0][a]]} -> {labels[cols[1][a]]}"
+
+    return (*cols, names)
