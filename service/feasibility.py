@@ -121,6 +121,7 @@ def reject_if_short(net: Network, shortfall: Shortfall) -> None:
     if net.reject_unmet and shortfall.amount > 0:
         w = witness(net, shortfall)
         raise Infeasible(
-            f"{len(w['sinks'])} hard sinks need {w['demand']} units but the sources and arcs "
-            f"that can reach them carry at most {w['capacity']}: {w['shortfall']} short",
+            f"hard sinks {', '.join(w['sinks'][:5])}{' ...' if len(w['sinks']) > 5 else ''} "
+            f"need {w['demand']} units but the sources and arcs that can reach them carry at "
+            f"most {w['capacity']}: {w['shortfall']} short (see witness)",
             witness=w)
