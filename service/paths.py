@@ -36,32 +36,44 @@ def bellman_ford(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, *
 
     Notes
     -----
-    Ahuja, Magnanti & Orlin, *Network Flows* (1993), §5.4: a round relaxes all arcs; with
-    no negative cycle distances are final after at most ``n - 1`` rounds.
+    Ahuja, Magnanti & Orlin, *Network Flows* (1993), §5.4, the FIFO variant: a round
+    relaxes the arcs leaving the nodes improved in the round before (all nodes at first).
+    After round ``k`` each distance is at most the shortest path of ``k`` arcs, so with no
+    negative cycle nothing improves after ``n`` rounds.
     """
     dist = np.zeros(n, np.int64)
     pred = np.full(n, -1, np.int64)
     empty = np.zeros(0, np.int64)
     if len(tail) == 0:
         return ShortestPaths(dist, pred, True, empty)
-    order = np.argsort(head, kind="stable")
-    t_s, h_s, c_s = tail[order], head[order], cost[order]
-    targets, starts = np.unique(h_s, return_index=True)
+    by_tail = np.argsort(tail, kind="stable")
+    indptr = np.searchsorted(tail[by_tail], np.arange(n + 1))
+    active = np.arange(n)
     rounds = n + 1 if max_rounds is None else max_rounds
-    improved_nodes = empty
     for _ in range(rounds):
-        cand = dist[t_s] + c_s
-        best = np.minimum.reduceat(cand, starts)
-        improved = best < dist[targets]
-        if not improved.any():
+        arcs = by_tail[_ranges(indptr[active], indptr[active + 1])]
+        h = head[arcs]
+        cand = dist[tail[arcs]] + cost[arcs]
+        better = cand < dist[h]
+        if not better.any():
             return ShortestPaths(dist, pred, True, empty)
-        improved_nodes = targets[improved]
+        arcs, h, cand = arcs[better], h[better], cand[better]
+        np.minimum.at(dist, h, cand)
         if want_pred:
-            seg = np.repeat(best, np.diff(np.append(starts, len(h_s))))
-            hit = (cand == seg) & improved[np.searchsorted(targets, h_s)]
-            pred[h_s[hit]] = order[hit]
-        dist[improved_nodes] = best[improved]
-    return ShortestPaths(dist, pred, False, improved_nodes)
+            won = cand == dist[h]
+            pred[h[won]] = arcs[won]
+        active = np.unique(h)
+    return ShortestPaths(dist, pred, False, active)
+
+
+def _ranges(starts: np.ndarray, stops: np.ndarray) -> np.ndarray:
+    """Concatenation of ``arange(a, b)`` for each pair, without a Python loop."""
+    counts = stops - starts
+    total = int(counts.sum())
+    if total == 0:
+        return np.zeros(0, np.int64)
+    offsets = np.repeat(starts - np.concatenate(([0], np.cumsum(counts)[:-1])), counts)
+    return offsets + np.arange(total)
 
 
 def cycle_through_pred(paths: ShortestPaths, tail: np.ndarray) -> list[int]:
