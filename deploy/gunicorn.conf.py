@@ -20,5 +20,8 @@ keepalive = 5
 # Recycle workers now and then so that memory of one huge request does not linger.
 max_requests = 1000
 max_requests_jitter = 100
+# gunicorn >= 25 opens a control socket at one path per user; several servers on one
+# machine (tests, a demo, a dev server) would delete each other's. We do not use it.
+control_socket_disable = True
 accesslog = "-"
 errorlog = "-"

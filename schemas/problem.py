@@ -59,7 +59,9 @@ class ProblemSchema(Schema):
 
     @validates_schema(pass_original=True, skip_on_field_errors=False)
     def _one_cost_form(self, data: dict[str, Any], original: Any, **kwargs: Any) -> None:
-        given = set(original) if isinstance(original, dict) else set()
+        if not isinstance(original, dict):
+            return                     # marshmallow already reports the wrong type
+        given = set(original)
         if "costs" in given and "arcs" in given:
             raise ValidationError("give either costs or arcs, not both", "arcs")
         if not given & {"costs", "arcs"}:

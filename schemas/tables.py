@@ -269,6 +269,8 @@ def _escape(token: str) -> str:
 
 
 def _lower(message: str) -> str:
+    """marshmallow's own messages in our style: lower-case, no closing full stop."""
+    message = message.rstrip(".")
     return message[0].lower() + message[1:] if message[:2].istitle() else message
 
 

@@ -122,6 +122,10 @@ def reject_if_short(net: Network, shortfall: Shortfall) -> None:
         w = witness(net, shortfall)
         raise Infeasible(
             f"hard sinks {', '.join(w['sinks'][:5])}{' ...' if len(w['sinks']) > 5 else ''} "
-            f"need {w['demand']} units but the sources and arcs that can reach them carry at "
-            f"most {w['capacity']}: {w['shortfall']} short (see witness)",
+            f"need {_units(w['demand'])} but the sources and arcs that can reach them carry "
+            f"at most {w['capacity']}: {w['shortfall']} short (see witness)",
             witness=w)
+
+
+def _units(n: int) -> str:
+    return f"{n} unit" if n == 1 else f"{n} units"
