@@ -78,8 +78,10 @@ def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
     ok = np.isfinite(vals) & (np.abs(vals) <= bound)
     if kind == "count":
         ok &= (vals >= 0) & (vals == np.floor(vals))
-    bad = np.flatnonzero(~ok).tolist() if not ok.all() else []
-    return vals, present, bad
+    if ok.all():
+        return vals, present, []
+    # zero the culprits so that callers may cast the array before raising the errors
+    return np.where(ok, vals, 0.0), present, np.flatnonzero(~ok).tolist()
 
 
 def check_ids(values: list[Any]) -> list[int]:

@@ -35,7 +35,11 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     @app.errorhandler(HTTPException)
     def _http_error(e: HTTPException) -> Any:
         status = e.code or 500
-        doc = problem_document(status, e.name, e.description or e.name)
+        detail = e.description or e.name
+        if status == 413:
+            detail = (f"the body is larger than {settings.max_body_bytes} bytes "
+                      "(setting MAX_BODY_BYTES)")
+        doc = problem_document(status, e.name, detail)
         response = json_response(doc, status, PROBLEM_CONTENT_TYPE)
         if status == 405 and e.get_response().headers.get("Allow"):
             response.headers["Allow"] = e.get_response().headers["Allow"]

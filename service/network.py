@@ -190,7 +190,7 @@ def _arcs_from_matrix(matrix: np.ndarray, n_src: int, n_snk: int, settings: Sett
     if rows != n_src:
         errors.append({"pointer": "/costs",
                        "detail": f"has {rows} rows, expected {n_src} (one per source)"})
-    elif cols != n_snk:
+    elif cols != n_snk and rows > 0:
         errors.append({"pointer": "/costs/0",
                        "detail": f"has {cols} entries, expected {n_snk} (one per sink)"})
     if errors:

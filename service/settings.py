@@ -50,6 +50,8 @@ def load_settings(overrides: Mapping[str, Any] | None = None,
             value = int(raw)
         except (TypeError, ValueError):
             raise ValueError(f"{source} must be a whole number, got {raw!r}") from None
+        if isinstance(raw, float) and not raw.is_integer():
+            raise ValueError(f"{source} must be a whole number, got {raw!r}")
         if isinstance(raw, bool) or value < 1:
             raise ValueError(f"{source} must be a whole number of at least 1, got {raw!r}")
         values[f.name] = value
