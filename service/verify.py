@@ -47,11 +47,23 @@ class _Checks:
             self.add(name, f"not checked: {why}", "")
 
 
+def _off_grid(reported: np.ndarray, scale: int) -> np.ndarray:
+    """How far reported values lie from the cost grid, beyond float representation error."""
+    scaled = np.asarray(reported, np.float64) * scale
+    return np.maximum(np.abs(scaled - np.rint(scaled)) - 8 * np.spacing(np.abs(scaled)), 0)
+
+
 def _close(reported: float, exact_scaled: int, scale: int) -> bool:
-    if scale == 1 and float(reported).is_integer():
-        return int(reported) == exact_scaled
-    gap = abs(reported * scale - exact_scaled)
-    return gap <= max(0.5, FLOAT_TOLERANCE * abs(exact_scaled))
+    """A reported value against its exact recomputation (in grid units).
+
+    Whole-number data: equal, up to the representation of the number as a float.
+    Fractional data: within FLOAT_TOLERANCE relative.
+    """
+    scaled = float(reported) * scale
+    gap = abs(scaled - exact_scaled) - 8 * float(np.spacing(abs(scaled)))
+    if scale == 1:
+        return gap <= 0
+    return gap <= FLOAT_TOLERANCE * abs(exact_scaled) + 1e-3
 
 
 def _dot(a: np.ndarray, b: np.ndarray) -> int:
@@ -63,9 +75,10 @@ def _dot(a: np.ndarray, b: np.ndarray) -> int:
 
 
 def _to_grid(values: np.ndarray, scale: int) -> np.ndarray | None:
-    """Reported numbers as integers of the cost grid; None when out of 64-bit range."""
+    """Reported potentials as integers of the cost grid; None when off the grid or too big."""
     scaled = np.rint(np.asarray(values, np.float64) * scale)
-    if len(scaled) and np.abs(scaled).max() >= _INT64_SAFE / 4:
+    if len(scaled) and (np.abs(scaled).max() >= _INT64_SAFE / 4
+                        or _off_grid(values, scale).max() > 1e-3):
         return None
     return scaled.astype(np.int64)
 
@@ -161,7 +174,8 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     if (where < 0).any() or missing or grid is None:
         checks.add("potentials", f"potentials missing for {missing[:5]}" if missing else
                    f"potential for unknown id {keys[_first(where < 0) or 0]!r}"
-                   if (where < 0).any() else "potentials beyond 64-bit range", "")
+                   if (where < 0).any() else
+                   f"potentials must be multiples of {1 / scale:g} within 64-bit range", "")
         checks.skip(["dual_feasibility", "complementary_slackness", "dual_objective"],
                     "potentials incomplete")
         return _result(checks)
@@ -221,9 +235,11 @@ def _arc_flows(net: Network, rows: Any, index: dict[str, int], checks: _Checks
                        "gives a cost matrix", "")
             return None
         arc[arc_given] = rows.columns["arc"][arc_given]
-        wrong = _first(arc_given & ((arc >= net.n_arcs) |
-                                    (net.tail[np.minimum(arc, net.n_arcs - 1)] != tails) |
-                                    (net.head[np.minimum(arc, net.n_arcs - 1)] != heads)))
+        inside = arc_given & (arc < net.n_arcs)
+        wrong = _first(arc_given & ~inside)
+        if wrong is None:
+            probe = np.where(inside, arc, 0)
+            wrong = _first(inside & ((net.tail[probe] != tails) | (net.head[probe] != heads)))
         if wrong is not None:
             checks.add("allocation_arcs", f"allocation row {wrong}: arc {arc[wrong]} does "
                        f"not join {rows.columns['from'][wrong]} to {rows.columns['to'][wrong]}",
@@ -271,6 +287,8 @@ def _amounts_differ(rows: Any, actual: np.ndarray, ids: list[str], index: dict[s
     stray = _first((where < 0) | (where >= count))
     if stray is not None:
         return f"{rows.columns['id'][stray]!r} is not a {kind}"
+    if len(np.unique(where)) != len(where):
+        return f"a {kind} is listed more than once"
     reported = np.zeros(count, np.int64)
     np.add.at(reported, where, rows.columns["amount"])
     bad = _first(reported != actual)
@@ -298,6 +316,12 @@ def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
     if demand - capacity != shortfall:
         return (f"hard sinks on the sink side need {demand}, arcs into it carry {capacity}: "
                 f"that proves {max(0, demand - capacity)} short, not {shortfall}")
+    sinks = {net.ids[off + i] for i in np.flatnonzero(hard_in).tolist()}
+    if set(cut["sinks"]) != sinks or len(cut["sinks"]) != len(sinks):
+        return "the cut's sinks are not the hard sinks on its sink side"
+    if (cut["demand"], cut["capacity"]) != (demand, capacity):
+        return (f"the cut reports demand {cut['demand']} and capacity {cut['capacity']}, "
+                f"recomputed {demand} and {capacity}")
     return None
 
 
