@@ -1,0 +1,54 @@
+"""Shared fixtures: one app per test, a test client, and JSON round trips that return data."""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable
+from dataclasses import fields
+from typing import Any
+
+import pytest
+
+from service.app import create_app
+from service.settings import ENV_PREFIX, Settings
+
+#: (status, parsed JSON body) of one request.
+Reply = tuple[int, Any]
+
+
+@pytest.fixture
+def app(monkeypatch: pytest.MonkeyPatch):
+    # A CERTIMATCH_* variable left in the shell would silently change the limits under test.
+    for f in fields(Settings):
+        monkeypatch.delenv(ENV_PREFIX + f.name.upper(), raising=False)
+    return create_app({"TESTING": True})
+
+
+@pytest.fixture
+def client(app):
+    return app.test_client()
+
+
+def _post(client: Any, path: str, body: Any) -> Reply:
+    """POST ``body`` as application/json; the status and the parsed answer."""
+    # The standard library writes integers of any size, which bad-input tests need.
+    resp = client.post(path, data=json.dumps(body), content_type="application/json")
+    return resp.status_code, json.loads(resp.data)
+
+
+@pytest.fixture
+def post_json(client) -> Callable[[str, Any], Reply]:
+    """``post_json(path, body) -> (status, json)`` with the test client."""
+    return lambda path, body: _post(client, path, body)
+
+
+@pytest.fixture
+def solve(client) -> Callable[[dict[str, Any]], Reply]:
+    """``solve(problem) -> (status, json)`` against POST /v1/solve."""
+    return lambda problem: _post(client, "/v1/solve", problem)
+
+
+@pytest.fixture
+def verify(client) -> Callable[[dict[str, Any], dict[str, Any]], Reply]:
+    """``verify(problem, answer) -> (status, json)`` against POST /v1/verify."""
+    return lambda problem, answer: _post(client, "/v1/verify", {**problem, "answer": answer})

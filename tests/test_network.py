@@ -1,0 +1,303 @@
+"""The network model, shape dispatch, stage 1 and shortest paths, without HTTP."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pytest
+
+from schemas import ProblemSchema
+from service import dispatch
+from service.dispatch import shape_of
+from service.errors import InvalidProblem, TooLarge, Unbounded
+from service.feasibility import check_bounded, least_shortfall, shortfall_of_matching, witness
+from service.network import COST_DECIMALS, build_network
+from service.paths import bellman_ford, cycle_through_pred
+from service.settings import Settings
+
+
+def net_of(problem: dict[str, Any], **limits: int):
+    return build_network(ProblemSchema().load(problem), Settings(**limits))
+
+
+def unit(prefix: str, k: int) -> list[dict[str, str]]:
+    return [{"id": f"{prefix}{i}"} for i in range(k)]
+
+
+def matrix(costs: list[list[Any]]) -> dict[str, Any]:
+    return {"sources": unit("s", len(costs)), "sinks": unit("t", len(costs[0])), "costs": costs}
+
+
+def arcs(pairs: list[tuple[str, str, float]], n: int, m: int, **extra: Any) -> dict[str, Any]:
+    return {"sources": unit("s", n), "sinks": unit("t", m),
+            "arcs": [{"from": a, "to": b, "cost": c} for a, b, c in pairs], **extra}
+
+
+# -- normalisation ----------------------------------------------------------------------------
+
+
+def test_nodes_are_indexed_sources_then_nodes_then_sinks():
+    net = net_of({"sources": [{"id": "b"}, {"id": "a"}], "nodes": [{"id": "h"}],
+                  "sinks": [{"id": "z"}, {"id": "y"}],
+                  "arcs": [{"from": "b", "to": "h", "cost": 1},
+                           {"from": "h", "to": "y", "cost": 1}]})
+    assert net.ids == ["b", "a", "h", "z", "y"]
+    assert (net.n_sources, net.n_nodes, net.n_sinks, net.sink_offset) == (2, 1, 2, 3)
+    assert net.tail.tolist() == [0, 2] and net.head.tolist() == [2, 4]
+
+
+def test_matrix_becomes_its_allowed_cells_row_major():
+    net = net_of(matrix([[1, None, 3], [None, 5, 6]]))
+    assert list(zip(net.tail.tolist(), net.head.tolist(), strict=True)) == [
+        (0, 2), (0, 4), (1, 3), (1, 4)]
+    assert net.cost.tolist() == [1, 3, 5, 6]
+    assert not net.bounded.any()
+
+
+def test_defaults_give_unit_supply_and_demand():
+    net = net_of(matrix([[1]]))
+    assert net.supply.tolist() == [1] and net.demand.tolist() == [1]
+    assert not net.soft.any() and not net.maximize and not net.reject_unmet
+
+
+def test_integer_data_stays_integer():
+    net = net_of({"sources": [{"id": "s", "supply": 3}],
+                  "sinks": [{"id": "t", "demand": 2, "penalty": 7}],
+                  "arcs": [{"from": "s", "to": "t", "cost": -4, "capacity": 2}]})
+    assert net.cost_scale == 1
+    for array in (net.cost, net.penalty, net.supply, net.demand, net.capacity):
+        assert array.dtype == np.int64
+    assert (net.cost.tolist(), net.penalty.tolist(), net.capacity.tolist()) == ([-4], [7], [2])
+
+
+def test_whole_valued_floats_are_whole():
+    # 2.0 is the number 2 in JSON: no reason to move to the fractional grid.
+    assert net_of(matrix([[2.0, 3]])).cost_scale == 1
+
+
+def test_fractional_costs_are_scaled_to_six_decimals():
+    net = net_of({"sources": [{"id": "s"}], "sinks": [{"id": "t", "penalty": 2.25}, {"id": "u"}],
+                  "costs": [[1.5, 2]]})
+    assert COST_DECIMALS == 6
+    assert net.cost_scale == 10**6
+    # Whole costs move to the same grid, so that sums stay comparable.
+    assert net.cost.tolist() == [1_500_000, 2_000_000]
+    assert net.penalty.tolist() == [2_250_000, 0]
+    assert net.cost.dtype == np.int64
+
+
+def test_digits_beyond_the_sixth_are_rounded():
+    net = net_of(matrix([[0.1234567, 0.1234564, -0.0000009]]))
+    assert net.cost.tolist() == [123457, 123456, -1]
+
+
+def test_a_fractional_penalty_alone_moves_costs_to_the_grid():
+    net = net_of({"sources": [{"id": "s"}], "sinks": [{"id": "t", "penalty": 0.5}],
+                  "costs": [[3]]})
+    assert net.cost_scale == 10**6
+    assert net.cost.tolist() == [3_000_000]
+
+
+def test_cross_field_errors_are_collected_with_pointers():
+    with pytest.raises(InvalidProblem) as info:
+        net_of({"sources": [{"id": "s"}], "sinks": [{"id": "s"}],
+                "arcs": [{"from": "s", "to": "s", "cost": 1}]})
+    assert [e["pointer"] for e in info.value.errors] == ["/sinks/0/id"]
+
+
+def test_size_limits_raise_too_large():
+    with pytest.raises(TooLarge, match="MAX_NODES"):
+        net_of(matrix([[1, 2], [3, 4]]), max_nodes=3)
+    with pytest.raises(TooLarge, match="MAX_CELLS"):
+        net_of(matrix([[1, 2], [3, 4]]), max_cells=3)
+
+
+# -- shapes and engines -----------------------------------------------------------------------
+
+
+def shape_and_solver(problem: dict[str, Any]) -> tuple[str, str]:
+    net = net_of(problem)
+    solution = dispatch.solve(net)
+    assert solution.shape == shape_of(net)
+    return solution.shape, solution.solver
+
+
+def test_dense_unit_matrix_is_assignment_on_the_dense_engine():
+    assert shape_and_solver(matrix([[4, 1, 3], [2, 0, 5], [3, 2, 2]])) == (
+        "assignment", "linear_sum_assignment")
+
+
+def test_mostly_null_matrix_is_assignment_on_the_sparse_engine():
+    # 3 allowed cells of 9: under half, so the sparse engine.
+    assert shape_and_solver(matrix([[1, None, None], [None, 2, None], [None, None, 3]])) == (
+        "assignment", "min_weight_full_bipartite_matching")
+
+
+def test_unit_arcs_are_assignment_on_the_sparse_engine():
+    problem = arcs([("s0", "t0", 1), ("s0", "t1", 2), ("s1", "t1", 1)], 2, 2)
+    assert shape_and_solver(problem) == ("assignment", "min_weight_full_bipartite_matching")
+
+
+def test_rectangular_assignment_covers_the_smaller_side():
+    net = net_of(matrix([[3, 1, 2], [1, 3, 2]]))
+    solution = dispatch.solve(net)
+    assert solution.solver == "linear_sum_assignment"
+    assert int(solution.flow.sum()) == 2
+    assert solution.shortfall.amount == 1
+
+
+@pytest.mark.parametrize("problem", [
+    # A source with no allowed cell: no matching covers the two sources.
+    matrix([[1, 2], [None, None]]),
+    # Two sources that both reach only one sink: no matching covers either side.
+    arcs([("s0", "t0", 1), ("s1", "t0", 2)], 2, 2),
+], ids=["dense", "sparse"])
+def test_assignment_without_a_covering_matching_falls_through_to_min_cost_flow(problem):
+    assert shape_and_solver(problem) == ("assignment", "min_cost_flow")
+
+
+@pytest.mark.parametrize(("problem", "shape"), [
+    ({**matrix([[1, 2]]), "sources": [{"id": "s0", "supply": 2}]}, "transportation"),
+    ({**matrix([[1, 2]]), "sinks": [{"id": "t0", "penalty": 3}, {"id": "t1"}]}, "transportation"),
+    ({"sources": unit("s", 1), "sinks": unit("t", 1),
+      "arcs": [{"from": "s0", "to": "t0", "cost": 1, "capacity": 2}]}, "transportation"),
+    (arcs([("s0", "t0", 1), ("s0", "t0", 2)], 1, 1), "transportation"),        # parallel arcs
+    ({"sources": unit("s", 1), "sinks": unit("t", 1),
+      "arcs": [{"from": "s0", "to": "t0", "cost": 1, "capacity": 1}]}, "assignment"),
+    ({"sources": unit("s", 1), "nodes": [{"id": "h"}], "sinks": unit("t", 1),
+      "arcs": [{"from": "s0", "to": "h", "cost": 1}, {"from": "h", "to": "t0", "cost": 1}]},
+     "transshipment"),
+    (arcs([("s0", "t0", 1), ("t0", "s1", 1), ("s1", "t1", 1)], 2, 2), "transshipment"),
+    (arcs([("s0", "s1", 1), ("s1", "t0", 1)], 2, 1), "transshipment"),
+], ids=["supply-2", "soft-sink", "capacity-2", "parallel", "capacity-1", "node",
+        "sink-to-source", "source-to-source"])
+def test_shape_classification(problem, shape):
+    assert shape_of(net_of(problem)) == shape
+
+
+def test_non_assignment_shapes_use_min_cost_flow():
+    problem = {**matrix([[1, 2]]), "sources": [{"id": "s0", "supply": 2}]}
+    assert shape_and_solver(problem) == ("transportation", "min_cost_flow")
+
+
+# -- stage 1: unbounded cycles and the least hard shortfall ------------------------------------
+
+LOOP = {
+    "sources": [{"id": "s"}], "nodes": [{"id": "u"}, {"id": "v"}], "sinks": [{"id": "t"}],
+    "arcs": [{"from": "s", "to": "u", "cost": 1}, {"from": "u", "to": "v", "cost": -3},
+             {"from": "v", "to": "u", "cost": 1}, {"from": "v", "to": "t", "cost": 1}],
+}
+
+
+def test_an_unbounded_negative_cycle_is_named():
+    with pytest.raises(Unbounded) as info:
+        check_bounded(net_of(LOOP))
+    assert sorted(info.value.extra["cycle"]) == ["u", "v"]
+    assert "-2" in info.value.detail         # -3 + 1 per turn
+
+
+def test_a_capacity_on_the_cycle_makes_it_bounded():
+    capped = {**LOOP, "arcs": [{**a, "capacity": 4} if a["from"] == "v" and a["to"] == "u"
+                               else a for a in LOOP["arcs"]]}
+    check_bounded(net_of(capped))             # no exception
+
+
+def test_a_negative_arc_on_no_cycle_is_bounded():
+    check_bounded(net_of(arcs([("s0", "t0", -5)], 1, 1)))
+
+
+def test_maximising_a_positive_cycle_is_unbounded():
+    flipped = {**LOOP, "objective": "max",
+               "arcs": [{**a, "cost": -a["cost"]} for a in LOOP["arcs"]]}
+    with pytest.raises(Unbounded):
+        check_bounded(net_of(flipped))
+
+
+#: X and Y need 10; A (supply 5, unbounded arcs to X and Y) and B -> X (capacity 2) reach them.
+SHORT = {
+    "sources": [{"id": "A", "supply": 5}, {"id": "B", "supply": 10}],
+    "sinks": [{"id": "X", "demand": 6}, {"id": "Y", "demand": 4}, {"id": "Z", "demand": 3}],
+    "arcs": [{"from": "A", "to": "X", "cost": 1}, {"from": "A", "to": "Y", "cost": 2},
+             {"from": "B", "to": "X", "cost": 3, "capacity": 2},
+             {"from": "B", "to": "Z", "cost": 1}],
+}
+
+
+def test_least_shortfall_and_its_cut_on_a_hand_example():
+    net = net_of(SHORT)
+    shortfall = least_shortfall(net)
+    assert shortfall.amount == 3
+    assert [net.ids[i] for i in np.flatnonzero(shortfall.sink_side)] == ["A", "X", "Y"]
+    assert witness(net, shortfall) == {
+        "sinks": ["X", "Y"], "sources": ["A"],
+        "arcs": [{"from": "B", "to": "X", "capacity": 2}],
+        "demand": 10, "capacity": 7, "shortfall": 3,
+    }
+
+
+def test_soft_sinks_do_not_count_towards_the_hard_shortfall():
+    soft_y = {**SHORT, "sinks": [{"id": "X", "demand": 6}, {"id": "Y", "demand": 4, "penalty": 1},
+                                 {"id": "Z", "demand": 3}]}
+    # Without Y, X's 6 are reachable: A's 5 and B's 2.
+    assert least_shortfall(net_of(soft_y)).amount == 0
+
+
+def test_no_shortfall_gives_an_empty_sink_side():
+    enough = {**SHORT, "sources": [{"id": "A", "supply": 8}, {"id": "B", "supply": 10}]}
+    shortfall = least_shortfall(net_of(enough))
+    assert shortfall.amount == 0 and not shortfall.sink_side.any()
+
+
+def test_shortfall_of_a_matching_with_more_sinks_than_sources():
+    net = net_of(matrix([[1, 2, 3], [4, 5, 6]]))
+    shortfall = shortfall_of_matching(net, 2)
+    assert shortfall.amount == 1
+    w = witness(net, shortfall)
+    assert (w["demand"], w["capacity"], w["shortfall"]) == (3, 2, 1)
+
+
+# -- shortest paths ---------------------------------------------------------------------------
+
+
+def test_bellman_ford_without_a_negative_cycle():
+    # 0 -> 1 (2), 1 -> 2 (-1), 0 -> 2 (4), 2 -> 3 (1); the root reaches every node at 0.
+    tail, head = np.array([0, 1, 0, 2]), np.array([1, 2, 2, 3])
+    paths = bellman_ford(4, tail, head, np.array([2, -1, 4, 1]))
+    assert paths.converged
+    assert paths.dist.tolist() == [0, 0, -1, 0]
+
+
+def test_bellman_ford_distances_give_nonnegative_reduced_costs():
+    # The property the certificate relies on: c - pi(i) + pi(j) >= 0 with pi = -dist. Arcs
+    # only go from lower to higher index, so there is no cycle even with negative costs.
+    rng = np.random.default_rng(7)
+    n, m = 12, 40
+    a, b = rng.integers(0, n, m), rng.integers(0, n, m)
+    keep = a != b
+    tail, head = np.minimum(a, b)[keep], np.maximum(a, b)[keep]
+    cost = rng.integers(-10, 11, len(tail))
+    paths = bellman_ford(n, tail, head, cost)
+    assert paths.converged
+    pi = -paths.dist
+    assert (cost - pi[tail] + pi[head] >= 0).all()
+    assert (paths.dist <= 0).all() and paths.dist.min() < 0
+
+
+def test_bellman_ford_finds_a_negative_cycle():
+    # 0 -> 1 (1), 1 -> 2 (-2), 2 -> 0 (0): a cycle of cost -1; 2 -> 3 hangs off it.
+    tail, head = np.array([0, 1, 2, 2]), np.array([1, 2, 0, 3])
+    cost = np.array([1, -2, 0, 5])
+    paths = bellman_ford(4, tail, head, cost, want_pred=True)
+    assert not paths.converged
+    cycle = cycle_through_pred(paths, tail)
+    assert sorted(cycle) == [0, 1, 2]
+    # Consecutive arcs join head to tail, and the last closes on the first.
+    for a, b in zip(cycle, cycle[1:] + cycle[:1], strict=True):
+        assert head[a] == tail[b]
+    assert cost[cycle].sum() == -1
+
+
+def test_bellman_ford_with_no_arcs():
+    paths = bellman_ford(3, np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, np.int64))
+    assert paths.converged and paths.dist.tolist() == [0, 0, 0]
