@@ -24,7 +24,8 @@ class SinkSchema(Schema):
 
     id = fields.String(required=True)
     demand = fields.Integer(load_default=1)
-    penalty = fields.Float(metadata={"description": "cost of each unit left unmet"})
+    penalty = fields.Float(metadata={"description": "cost of each unit left unmet",
+                                     "minimum": 0})
 
 
 class NodeSchema(Schema):

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from marshmallow import Schema, fields
 
+from schemas.answer import CheckSchema
+
 
 class FieldErrorSchema(Schema):
     pointer = fields.String(required=True, metadata={"description": "RFC 6901 JSON Pointer"})
@@ -35,3 +37,6 @@ class ProblemDocumentSchema(Schema):
     errors = fields.List(fields.Nested(FieldErrorSchema))
     witness = fields.Nested(WitnessSchema)
     cycle = fields.List(fields.String())
+    limit = fields.Integer(metadata={"description": "the size limit exceeded (too-large)"})
+    checks = fields.List(fields.Nested(CheckSchema),
+                         metadata={"description": "failed checks (certificate-failure)"})

@@ -33,11 +33,12 @@ _NUMBER_TYPES = {int, float}
 MAX_ANSWER_VALUE = 2**53
 
 
-def number_detail(kind: str, bound: int = MAX_ABS_VALUE) -> str:
+def number_detail(kind: str, bound: int = MAX_ABS_VALUE, minimum: int | None = None) -> str:
     """The one message for a number out of its domain, naming the allowed range."""
     if kind == "count":
         return f"must be a whole number from 0 to {bound}"
-    return f"must be a finite number from -{bound} to {bound}"
+    low = -bound if minimum is None else minimum
+    return f"must be a finite number from {low} to {bound}"
 
 
 def _bad_number(v: Any, kind: str, bound: int = MAX_ABS_VALUE) -> bool:
@@ -54,7 +55,8 @@ def _bad_number(v: Any, kind: str, bound: int = MAX_ABS_VALUE) -> bool:
 
 
 def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
-                  bound: int = MAX_ABS_VALUE) -> tuple[np.ndarray, np.ndarray, list[int]]:
+                  bound: int = MAX_ABS_VALUE, minimum: int | None = None
+                  ) -> tuple[np.ndarray, np.ndarray, list[int]]:
     """Check a list of JSON numbers in bulk.
 
     Returns ``(array, present, bad)``: float64 values (0 where null), a mask of non-null
@@ -71,13 +73,16 @@ def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
             arr = None
     if arr is None:
         bad = [i for i, v in enumerate(values)
-               if not (nullable and v is None) and _bad_number(v, kind, bound)]
+               if not (nullable and v is None) and (
+                   _bad_number(v, kind, bound) or (minimum is not None and v < minimum))]
         return np.zeros(n), np.ones(n, bool), bad
     present = ~np.isnan(arr) if nullable else np.ones(n, bool)
     vals = np.where(present, arr, 0.0)
     ok = np.isfinite(vals) & (np.abs(vals) <= bound)
     if kind == "count":
         ok &= (vals >= 0) & (vals == np.floor(vals))
+    if minimum is not None:
+        ok &= vals >= minimum
     if ok.all():
         return vals, present, []
     # zero the culprits so that callers may cast the array before raising the errors
@@ -139,7 +144,8 @@ class RecordList(fields.Field):
         schema = row_schema()
         self.specs = [(f.data_key or name, _column_kind(f), f)
                       for name, f in schema.fields.items()]
-        self.bounds = {f.data_key or name: f.metadata.get("bound", MAX_ABS_VALUE)
+        self.bounds = {f.data_key or name: (f.metadata.get("bound", MAX_ABS_VALUE),
+                                            f.metadata.get("minimum"))
                        for name, f in schema.fields.items()}
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Table:
@@ -173,11 +179,12 @@ class RecordList(fields.Field):
                 table.columns[key] = col
                 continue
             nullable = optional
-            bound = self.bounds[key]
-            vals, present, bad = check_numbers(col, kind, nullable=nullable, bound=bound)
+            bound, minimum = self.bounds[key]
+            vals, present, bad = check_numbers(col, kind, nullable=nullable, bound=bound,
+                                               minimum=minimum)
             for i in bad:
-                _add(errors, i, key,
-                     "missing" if key not in rows[i] else number_detail(kind, bound))
+                _add(errors, i, key, "missing" if key not in rows[i]
+                     else number_detail(kind, bound, minimum))
             if optional and has_default and not present.all():
                 vals = np.where(present, vals, float(default))
                 present = np.ones(n, bool)

@@ -7,7 +7,12 @@ from typing import Any
 import orjson
 from flask import Blueprint, Response, current_app, request
 
-from service.errors import MalformedBody, UnsupportedMediaType
+from service.errors import (
+    PROBLEM_CONTENT_TYPE,
+    MalformedBody,
+    UnsupportedMediaType,
+    problem_document,
+)
 from service.pipeline import solve_body, verify_body
 from service.settings import Settings
 
@@ -61,5 +66,7 @@ def readyz() -> Response:
         answer = solve_body(_PROBE, _settings())
         state["certimatch.ready"] = answer["objective"] == 1
     if not state["certimatch.ready"]:
-        return json_response({"status": "not ready"}, 503)
+        doc = problem_document(503, "Not ready", "the start-up probe problem was not solved "
+                               "correctly", "not-ready")
+        return json_response(doc, 503, PROBLEM_CONTENT_TYPE)
     return json_response({"status": "ready"})

@@ -111,7 +111,8 @@ def test_readyz_says_not_ready_when_the_probe_answer_is_wrong(client, monkeypatc
     monkeypatch.setattr(api, "solve_body", lambda body, settings: {"objective": 2})
     resp = client.get("/readyz")
     assert resp.status_code == 503
-    assert resp.get_json() == {"status": "not ready"}
+    assert resp.mimetype == "application/problem+json"
+    assert resp.get_json()["type"] == "urn:certimatch:problem:not-ready"
 
 
 def test_readyz_remembers_a_good_probe(client, monkeypatch):
