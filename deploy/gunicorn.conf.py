@@ -1,4 +1,6 @@
-"""gunicorn settings for certimatch: ``gunicorn -c deploy/gunicorn.conf.py 'service.app:create_app()'``.
+"""gunicorn settings for certimatch.
+
+Use: ``gunicorn -c deploy/gunicorn.conf.py 'service.app:create_app()'``.
 
 Solving is CPU-bound numpy/OR-Tools work, so one synchronous worker per core is the right
 shape: threads would only contend for the same core, and a slow solve must not block
