@@ -12,6 +12,7 @@ import json
 from dataclasses import fields
 from typing import Any
 
+import examples
 import pytest
 from flask.testing import FlaskClient
 
@@ -420,14 +421,7 @@ def test_a_capped_negative_cycle_is_solvable(client):
 
 #: Sinks X and Y need 6 + 4 = 10. Only A (supply 5, unbounded arcs to X and Y) and the arc
 #: B -> X (capacity 2) reach them: 7 at most, so 3 short. Z is served by B alone.
-SHORT = {
-    "sources": [{"id": "A", "supply": 5}, {"id": "B", "supply": 10}],
-    "sinks": [{"id": "X", "demand": 6}, {"id": "Y", "demand": 4}, {"id": "Z", "demand": 3}],
-    "arcs": [{"from": "A", "to": "X", "cost": 1}, {"from": "A", "to": "Y", "cost": 2},
-             {"from": "B", "to": "X", "cost": 3, "capacity": 2},
-             {"from": "B", "to": "Z", "cost": 1}],
-    "unmet_demand": "reject",
-}
+SHORT = {**examples.SHORT, "unmet_demand": "reject"}
 
 
 def test_rejected_shortfall_is_422_with_the_witness(client):

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+import examples
 import numpy as np
 import pytest
 
@@ -215,13 +216,7 @@ def test_maximising_a_positive_cycle_is_unbounded():
 
 
 #: X and Y need 10; A (supply 5, unbounded arcs to X and Y) and B -> X (capacity 2) reach them.
-SHORT = {
-    "sources": [{"id": "A", "supply": 5}, {"id": "B", "supply": 10}],
-    "sinks": [{"id": "X", "demand": 6}, {"id": "Y", "demand": 4}, {"id": "Z", "demand": 3}],
-    "arcs": [{"from": "A", "to": "X", "cost": 1}, {"from": "A", "to": "Y", "cost": 2},
-             {"from": "B", "to": "X", "cost": 3, "capacity": 2},
-             {"from": "B", "to": "Z", "cost": 1}],
-}
+SHORT = examples.SHORT
 
 
 def test_least_shortfall_and_its_cut_on_a_hand_example():

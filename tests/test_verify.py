@@ -11,6 +11,7 @@ import copy
 import json
 from typing import Any
 
+import examples
 import numpy as np
 import pytest
 from scipy.optimize import linear_sum_assignment
@@ -44,13 +45,7 @@ FLOW = {
 }
 
 #: Hard sinks X and Y need 10; only A (supply 5) and B -> X (capacity 2) reach them: 3 short.
-SHORT = {
-    "sources": [{"id": "A", "supply": 5}, {"id": "B", "supply": 10}],
-    "sinks": [{"id": "X", "demand": 6}, {"id": "Y", "demand": 4}, {"id": "Z", "demand": 3}],
-    "arcs": [{"from": "A", "to": "X", "cost": 1}, {"from": "A", "to": "Y", "cost": 2},
-             {"from": "B", "to": "X", "cost": 3, "capacity": 2},
-             {"from": "B", "to": "Z", "cost": 1}],
-}
+SHORT = examples.SHORT
 
 #: Checks that prove least cost; a feasible but dearer answer must fail some of these only.
 OPTIMALITY = {"dual_feasibility", "complementary_slackness", "dual_objective"}
