@@ -31,39 +31,42 @@ def _value(net: Network, scaled: int) -> int | float:
 
 def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[str, Any]:
     """The answer document (plain dicts and lists, ready for JSON)."""
-    ext, x, pi = cert.ext, cert.flow, cert.potential
+    ext, xv, pi = cert.ext, cert.virtual_flow, cert.potential
     ids = net.ids
     flow = solution.flow
-    used = np.flatnonzero(flow > 0)
-    used = used[np.lexsort((used, net.head[used], net.tail[used]))]
-    froms = [ids[i] for i in net.tail[used].tolist()]
-    tos = [ids[i] for i in net.head[used].tolist()]
-    flows = flow[used].tolist()
-    costs = _values(net, flow[used] * net.cost[used])
+    tail, head = net.endpoints(flow.arc)
+    order = np.lexsort((flow.arc, head, tail))
+    arc, tail, head, amount = flow.arc[order], tail[order], head[order], flow.amount[order]
+    froms = [ids[i] for i in tail.tolist()]
+    tos = [ids[i] for i in head.tolist()]
+    flows = amount.tolist()
+    costs = _values(net, amount * net.arc_cost(arc) * net.sign)
     if net.from_matrix:
         allocation = [{"from": f, "to": t, "flow": q, "cost": c}
                       for f, t, q, c in zip(froms, tos, flows, costs, strict=True)]
     else:
         allocation = [{"from": f, "to": t, "flow": q, "cost": c, "arc": a}
-                      for f, t, q, c, a in zip(froms, tos, flows, costs, used.tolist(),
+                      for f, t, q, c, a in zip(froms, tos, flows, costs, arc.tolist(),
                                                strict=True)]
     off = net.sink_offset
     short = np.zeros(net.n_sinks, np.int64)
-    short[ext.soft_sinks] = x[ext.blocks["soft"]]
-    short[ext.hard_sinks] = x[ext.blocks["hard"]]
-    idle = net.supply - x[ext.blocks["supply"]]
-    sign = -1 if net.maximize else 1
+    short[ext.soft_sinks] = xv[ext.blocks["soft"]]
+    short[ext.hard_sinks] = xv[ext.blocks["hard"]]
+    idle = net.supply - xv[ext.blocks["supply"]]
+    sign = net.sign
     side = solution.shortfall.sink_side
     cut_sinks = np.flatnonzero(side[off:] & ~net.soft)
-    cut_sources = side[: net.n_sources]
-    crossing = ~side[net.tail] & side[net.head]
+    cut_capacity = int(net.supply[side[: net.n_sources]].sum())
+    if side.any() and net.arc_list is not None:
+        arcs = net.arc_list
+        cut_capacity += int(arcs.capacity[~side[arcs.tail] & side[arcs.head]].sum())
     potentials = _values(net, pi)
     return {
         "status": "optimal",
         "shape": solution.shape,
         "solver": solution.solver,
         "objective": _value(net, sign * cert.primal),
-        "flow_value": int(x[ext.blocks["supply"]].sum()),
+        "flow_value": int(xv[ext.blocks["supply"]].sum()),
         "allocation": allocation,
         "unmet": [{"id": ids[off + i], "amount": int(short[i])}
                   for i in np.flatnonzero(short).tolist()],
@@ -80,8 +83,7 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
                 "sink_side": [ids[i] for i in np.flatnonzero(side).tolist()],
                 "sinks": [ids[off + i] for i in cut_sinks.tolist()],
                 "demand": int(net.demand[cut_sinks].sum()),
-                "capacity": int(net.supply[cut_sources].sum()
-                                + net.capacity[crossing].sum()),
+                "capacity": cut_capacity,
             },
             "dual_objective": _value(net, sign * cert.dual),
         },

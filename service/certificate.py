@@ -15,8 +15,8 @@ import numpy as np
 
 from service.dispatch import Solution
 from service.errors import CertificateFailure, OutOfRange
-from service.network import Extended, Network, complete_flows, extend
-from service.paths import bellman_ford
+from service.network import Extended, Network, extend, virtual_flows
+from service.paths import DenseBlock, bellman_ford
 
 __all__ = ["Certificate", "certify", "exact_dot"]
 
@@ -39,8 +39,8 @@ class Certificate:
     """Everything the answer needs, in exact scaled integers of the min form."""
 
     ext: Extended
-    flow: np.ndarray          # per extended arc
-    potential: np.ndarray     # per extended node
+    virtual_flow: np.ndarray  # per virtual arc of ``ext``
+    potential: np.ndarray     # per node of the extended network
     primal: int               # min-form cost of the flow
     dual: int                 # dual objective of the potentials
 
@@ -60,26 +60,45 @@ def certify(net: Network, solution: Solution) -> Certificate:
 
     Notes
     -----
+    The residual graph has, for each arc with flow below capacity, a forward arc of cost
+    ``c``, and for each arc with positive flow a backward arc of cost ``-c``. Matrix cells
+    are unbounded, so all of them are forward arcs: they stay a dense block.
     Dual objective of min-cost flow with capacities (AMO §9.4):
-    ``sum_i b(i) pi(i) - sum_a u_a max(0, -c^pi_a)`` with ``b(S) = D``, ``b(T) = -D``.
+    ``sum_i b(i) pi(i) - sum_a u_a max(0, -c^pi_a)`` with ``b(S) = D``, ``b(T) = -D``;
+    unbounded arcs contribute nothing (their reduced costs are non-negative).
     """
+    flow = solution.flow
     ext = extend(net, solution.shortfall.amount)
-    x = complete_flows(net, ext, solution.flow)
-    fwd = x < ext.capacity
-    bwd = x > 0
-    r_tail = np.concatenate([ext.tail[fwd], ext.head[bwd]])
-    r_head = np.concatenate([ext.head[fwd], ext.tail[bwd]])
-    r_cost = np.concatenate([ext.cost[fwd], -ext.cost[bwd]])
-    paths = bellman_ford(ext.n_nodes, r_tail, r_head, r_cost)
+    xv = virtual_flows(net, ext, flow)
+    used_tail, used_head = net.endpoints(flow.arc)
+    used_cost = net.arc_cost(flow.arc)
+    parts = [(ext.tail[xv < ext.capacity], ext.head[xv < ext.capacity],
+              ext.cost[xv < ext.capacity]),
+             (ext.head[xv > 0], ext.tail[xv > 0], -ext.cost[xv > 0]),
+             (used_head, used_tail, -used_cost)]
+    block = None
+    if net.dense is not None:
+        block = DenseBlock(0, net.sink_offset, net.dense)
+    else:
+        arcs = net.arcs
+        x = np.zeros(len(arcs), np.int64)
+        x[flow.arc] = flow.amount           # arc ids of a list are positions
+        room = ~arcs.bounded | (x < arcs.capacity)
+        parts.append((arcs.tail[room], arcs.head[room], arcs.cost[room]))
+    tail, head, cost = (np.concatenate([p[k] for p in parts]) for k in range(3))
+    paths = bellman_ford(ext.n_nodes, tail, head, cost, dense=block)
     if not paths.converged:
         raise CertificateFailure("the residual graph has a negative cycle: the engine's flow "
                                  "is not optimal")
     pi = -paths.dist
-    reduced = ext.cost - pi[ext.tail] + pi[ext.head]
-    demand = net.total_demand
-    primal = exact_dot(ext.cost, x)
-    dual = demand * int(pi[ext.S] - pi[ext.T]) - exact_dot(ext.capacity,
-                                                          np.maximum(0, -reduced))
+    primal = exact_dot(used_cost, flow.amount) + exact_dot(ext.cost, xv)
+    penalty = exact_dot(ext.capacity, np.maximum(0, -(ext.cost - pi[ext.tail] + pi[ext.head])))
+    if net.arc_list is not None:
+        arcs = net.arc_list
+        b = arcs.bounded
+        reduced = arcs.cost[b] - pi[arcs.tail[b]] + pi[arcs.head[b]]
+        penalty += exact_dot(arcs.capacity[b], np.maximum(0, -reduced))
+    dual = net.total_demand * int(pi[ext.S] - pi[ext.T]) - penalty
     if dual != primal:
         raise CertificateFailure(f"dual objective {dual} differs from the cost {primal}")
-    return Certificate(ext=ext, flow=x, potential=pi, primal=primal, dual=dual)
+    return Certificate(ext=ext, virtual_flow=xv, potential=pi, primal=primal, dual=dual)

@@ -22,7 +22,7 @@ from service.feasibility import (
     reject_if_short,
     shortfall_of_matching,
 )
-from service.network import Network
+from service.network import Arcs, Flow, Network
 
 #: A cost matrix with at least this share of allowed cells goes to the dense engine.
 DENSE_SHARE = 0.5
@@ -34,25 +34,28 @@ class Solution:
 
     shape: str
     solver: str
-    flow: np.ndarray
+    flow: Flow
     shortfall: Shortfall
 
 
 def shape_of(net: Network) -> str:
     """'assignment', 'transportation' or 'transshipment' (see module docstring)."""
-    bipartite = (net.n_nodes == 0 and bool(np.all(net.tail < net.n_sources))
-                 and bool(np.all(net.head >= net.sink_offset)))
+    unit = (bool(np.all(net.supply == 1)) and bool(np.all(net.demand == 1))
+            and not net.soft.any())
+    if net.arc_list is None:
+        return "assignment" if unit else "transportation"
+    arcs = net.arc_list
+    bipartite = (net.n_nodes == 0 and bool(np.all(arcs.tail < net.n_sources))
+                 and bool(np.all(arcs.head >= net.sink_offset)))
     if not bipartite:
         return "transshipment"
-    unit = (bool(np.all(net.supply == 1)) and bool(np.all(net.demand == 1))
-            and not net.soft.any() and bool(np.all(net.capacity[net.bounded] == 1)))
-    if unit and (net.from_matrix or _pairs_unique(net)):
+    if unit and bool(np.all(arcs.capacity[arcs.bounded] == 1)) and _pairs_unique(arcs):
         return "assignment"
     return "transportation"
 
 
-def _pairs_unique(net: Network) -> bool:
-    keys = net.tail * net.n_user + net.head
+def _pairs_unique(arcs: Arcs) -> bool:
+    keys = arcs.tail * (int(arcs.head.max(initial=0)) + 1) + arcs.head
     return len(np.unique(keys)) == len(keys)
 
 
@@ -66,7 +69,7 @@ def solve(net: Network) -> Solution:
         engine = dense_assignment if dense else sparse_assignment
         flow = engine.solve(net)
         if flow is not None:
-            shortfall = shortfall_of_matching(net, int(flow.sum()))
+            shortfall = shortfall_of_matching(net, len(flow.arc))
             reject_if_short(net, shortfall)
             return Solution(shape, engine.NAME, flow, shortfall)
     shortfall = least_shortfall(net)

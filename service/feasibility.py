@@ -33,22 +33,25 @@ class Shortfall:
 
 def check_bounded(net: Network) -> None:
     """Raise Unbounded naming a negative-cost cycle made only of unbounded arcs."""
-    free = ~net.bounded
-    if not (free & (net.min_cost < 0)).any():
+    arcs = net.arc_list
+    if arcs is None:
+        return                      # a matrix joins sources to sinks only: no cycles
+    free = ~arcs.bounded
+    if not (free & (arcs.cost < 0)).any():
         return
-    tail, head, cost = net.tail[free], net.head[free], net.min_cost[free]
+    tail, head, cost = arcs.tail[free], arcs.head[free], arcs.cost[free]
     graph = coo_matrix((np.ones(len(tail)), (tail, head)), shape=(net.n_user, net.n_user))
     _, label = connected_components(graph, directed=True, connection="strong")
     inside = label[tail] == label[head]          # arcs that can lie on a cycle
     if not (inside & (cost < 0)).any():
         return
-    arcs = np.flatnonzero(inside)
-    paths = bellman_ford(net.n_user, tail[arcs], head[arcs], cost[arcs], want_pred=True)
+    on = np.flatnonzero(inside)
+    paths = bellman_ford(net.n_user, tail[on], head[on], cost[on], want_pred=True)
     if paths.converged:
         return
-    cycle = cycle_through_pred(paths, tail[arcs])
-    names = [net.ids[int(tail[arcs[a]])] for a in cycle]
-    total = int(cost[arcs[cycle]].sum()) * net.sign
+    cycle = cycle_through_pred(paths, tail[on])
+    names = [net.ids[int(tail[on[a]])] for a in cycle]
+    total = int(cost[on[cycle]].sum()) * net.sign
     raise Unbounded(
         f"the cycle {' -> '.join(names + names[:1])} has unbounded capacity and "
         f"{'total score' if net.maximize else 'total cost'} {total / net.cost_scale:g} "
@@ -77,10 +80,11 @@ def least_shortfall(net: Network) -> Shortfall:
     S, T = n, n + 1
     off = net.sink_offset
     src = np.arange(net.n_sources)
-    tails = np.concatenate([np.full(len(src), S), net.tail, hard + off])
-    heads = np.concatenate([src, net.head, np.full(len(hard), T)])
+    arcs = net.arcs
+    tails = np.concatenate([np.full(len(src), S), arcs.tail, hard + off])
+    heads = np.concatenate([src, arcs.head, np.full(len(hard), T)])
     caps = np.concatenate([net.supply,
-                           np.where(net.bounded, net.capacity, net.unbounded_capacity()),
+                           np.where(arcs.bounded, arcs.capacity, net.unbounded_capacity()),
                            net.demand[hard]])
     solver = max_flow.SimpleMaxFlow()
     solver.add_arcs_with_capacity(tails.astype(np.int32), heads.astype(np.int32),
@@ -104,14 +108,15 @@ def witness(net: Network, shortfall: Shortfall) -> dict:
     off = net.sink_offset
     sinks = np.flatnonzero(side[off:] & ~net.soft)
     sources = np.flatnonzero(side[: net.n_sources])
-    crossing = np.flatnonzero(~side[net.tail] & side[net.head])
+    arcs = net.arcs
+    crossing = np.flatnonzero(~side[arcs.tail] & side[arcs.head])
     return {
         "sinks": [net.ids[off + int(i)] for i in sinks],
         "sources": [net.ids[int(i)] for i in sources],
-        "arcs": [{"from": net.ids[int(net.tail[a])], "to": net.ids[int(net.head[a])],
-                  "capacity": int(net.capacity[a])} for a in crossing],
+        "arcs": [{"from": net.ids[int(arcs.tail[a])], "to": net.ids[int(arcs.head[a])],
+                  "capacity": int(arcs.capacity[a])} for a in crossing],
         "demand": int(net.demand[sinks].sum()),
-        "capacity": int(net.supply[sources].sum() + net.capacity[crossing].sum()),
+        "capacity": int(net.supply[sources].sum() + arcs.capacity[crossing].sum()),
         "shortfall": shortfall.amount,
     }
 

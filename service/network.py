@@ -1,18 +1,24 @@
 """The normalised network every request becomes.
 
 A loaded problem (sources, sinks, nodes, costs or arcs) becomes one :class:`Network`: user
-nodes indexed sources first, then transshipment nodes, then sinks (each in request order),
-and one arc list (a cost matrix becomes its allowed cells, row-major). Numbers become
-exact integers: quantities are whole numbers, and costs and penalties are multiplied by
-``cost_scale`` (1 when they are all whole, else 10**COST_DECIMALS, rounded).
+nodes indexed sources first, then transshipment nodes, then sinks (each in request order).
+A cost matrix stays a matrix (``dense``); an arc list becomes parallel arrays (``arcs``).
+Numbers become exact integers: quantities are whole numbers, and costs and penalties are
+multiplied by ``cost_scale`` (1 when they are all whole, else 10**COST_DECIMALS, rounded).
+Every cost inside the service is in the *min form*: the caller's cost for ``min``, negated
+for ``max``.
 
-The same module builds the *extended* network of the certificate (README, "The
-certificate"): super-source, super-sink and hard-shortfall pool joined to the user nodes.
+Arcs are named by an *arc id*: the position in the request's ``arcs``, or the cell index
+``row * n_sinks + column`` of a matrix. A flow is a sparse list of arc ids and amounts.
+
+The same module builds the virtual part of the *extended* network of the certificate
+(README, "The certificate"): super-source, super-sink and hard-shortfall pool.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 from itertools import repeat
 from typing import Any
 
@@ -28,10 +34,37 @@ COST_DECIMALS = 6
 #: range in which a JSON number is exact in common clients.
 MAX_EXACT = 2**53
 
+#: Min-form cost of a forbidden cell of a dense matrix: far above any real cost (at most
+#: 10**15 after scaling) and any distance, yet with room to add potentials in int64.
+FORBIDDEN = 2**62
+
+
+@dataclass(frozen=True)
+class Arcs:
+    """User arcs as parallel arrays."""
+
+    id: np.ndarray            # int64 arc id
+    tail: np.ndarray          # int64 node index
+    head: np.ndarray          # int64 node index
+    cost: np.ndarray          # int64, scaled, min form
+    capacity: np.ndarray      # int64 (0 where unbounded)
+    bounded: np.ndarray       # bool
+
+    def __len__(self) -> int:
+        return len(self.id)
+
+
+@dataclass(frozen=True)
+class Flow:
+    """Positive flows on user arcs: arc ids in ascending order and their amounts."""
+
+    arc: np.ndarray
+    amount: np.ndarray
+
 
 @dataclass(frozen=True)
 class Network:
-    """User nodes and arcs with exact integer data; costs as the caller gave them, scaled."""
+    """User nodes and arcs with exact integer data (see module docstring)."""
 
     ids: list[str]
     n_sources: int
@@ -41,12 +74,8 @@ class Network:
     demand: np.ndarray        # int64, per sink
     penalty: np.ndarray       # int64 scaled, per sink (0 where hard)
     soft: np.ndarray          # bool, per sink: has a penalty
-    tail: np.ndarray          # int64 node index, per arc
-    head: np.ndarray          # int64 node index, per arc
-    cost: np.ndarray          # int64 scaled, per arc, caller's sign
-    capacity: np.ndarray      # int64, per arc (0 where unbounded)
-    bounded: np.ndarray       # bool, per arc
-    from_matrix: bool
+    dense: np.ndarray | None  # n_sources x n_sinks min-form costs, FORBIDDEN where not allowed
+    arc_list: Arcs | None     # the request's arcs, when it gave arcs
     maximize: bool
     reject_unmet: bool
     cost_scale: int
@@ -60,17 +89,31 @@ class Network:
         return len(self.ids)
 
     @property
+    def from_matrix(self) -> bool:
+        return self.dense is not None
+
+    @cached_property
+    def arcs(self) -> Arcs:
+        """All user arcs; for a matrix, its allowed cells (built on first use)."""
+        if self.arc_list is not None:
+            return self.arc_list
+        assert self.dense is not None
+        rows, cols = np.nonzero(self.dense != FORBIDDEN)
+        n = len(rows)
+        return Arcs(id=rows.astype(np.int64) * self.n_sinks + cols, tail=rows.astype(np.int64),
+                    head=cols.astype(np.int64) + self.n_sources, cost=self.dense[rows, cols],
+                    capacity=np.zeros(n, np.int64), bounded=np.zeros(n, bool))
+
+    @cached_property
     def n_arcs(self) -> int:
-        return len(self.tail)
+        if self.dense is not None:
+            return int(np.count_nonzero(self.dense != FORBIDDEN))
+        return len(self.arcs)
 
     @property
     def sign(self) -> int:
-        """+1 for min, -1 for max: min-form cost = sign x cost."""
+        """+1 for min, -1 for max: caller's cost = sign x min-form cost."""
         return -1 if self.maximize else 1
-
-    @property
-    def min_cost(self) -> np.ndarray:
-        return self.cost if not self.maximize else -self.cost
 
     @property
     def total_demand(self) -> int:
@@ -86,7 +129,36 @@ class Network:
         Total demand plus all finite capacities: a flow decomposes into paths carrying
         the demand and cycles, and a cycle of only unbounded arcs gains nothing.
         """
-        return self.total_demand + int(self.capacity[self.bounded].sum()) + 1
+        finite = 0 if self.arc_list is None else int(
+            self.arc_list.capacity[self.arc_list.bounded].sum())
+        return self.total_demand + finite + 1
+
+    def arc_exists(self, arc: np.ndarray) -> np.ndarray:
+        """Mask of the ids that name a user arc."""
+        if self.dense is not None:
+            inside = (arc >= 0) & (arc < self.dense.size)
+            flat = self.dense.reshape(-1)
+            return inside & (flat[np.where(inside, arc, 0)] != FORBIDDEN)
+        return (arc >= 0) & (arc < len(self.arcs))
+
+    def endpoints(self, arc: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(tail, head) node indices of existing arc ids."""
+        if self.dense is not None:
+            rows, cols = np.divmod(arc, self.n_sinks)
+            return rows, cols + self.n_sources
+        return self.arcs.tail[arc], self.arcs.head[arc]
+
+    def arc_cost(self, arc: np.ndarray) -> np.ndarray:
+        """Min-form cost of existing arc ids."""
+        if self.dense is not None:
+            return self.dense.reshape(-1)[arc]
+        return self.arcs.cost[arc]
+
+    def arc_bound(self, arc: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(capacity, bounded) of existing arc ids; matrix cells are unbounded."""
+        if self.dense is not None:
+            return np.zeros(len(arc), np.int64), np.zeros(len(arc), bool)
+        return self.arcs.capacity[arc], self.arcs.bounded[arc]
 
     def kind_of(self, index: int) -> str:
         if index < self.n_sources:
@@ -122,34 +194,50 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
             ids.extend(table.columns["id"])
     errors.extend(_check_ids(ids, groups, settings.max_id_length))
     index = dict(zip(ids, range(len(ids)), strict=True)) if not errors else {}
-
-    penalty_present = sinks.present["penalty"]
-    penalty = sinks.columns["penalty"]
-    if "costs" in data:
-        matrix = data["costs"]
-        tail, head, cost, capacity, bounded = _arcs_from_matrix(
-            matrix, n_src, n_snk, settings, errors)
-        from_matrix = True
-    else:
-        tail, head, cost, capacity, bounded = _arcs_from_list(
-            data["arcs"], index, settings, errors)
-        from_matrix = False
     if errors:
         raise InvalidProblem(errors)
 
-    fractional = not (_whole(cost) and _whole(penalty[penalty_present]))
-    scale = 10**COST_DECIMALS if fractional else 1
+    penalty_present = sinks.present["penalty"]
+    penalty = sinks.columns["penalty"]
+    sign = -1 if data["objective"] == "max" else 1
+    dense = arc_list = None
+    if "costs" in data:
+        matrix = data["costs"]
+        _check_matrix(matrix, n_src, n_snk, settings, errors)
+        if errors:
+            raise InvalidProblem(errors)
+        whole_penalties = _whole(penalty[penalty_present])
+        if matrix.dtype == np.int64 and whole_penalties:
+            scale = 1                       # whole costs, every cell allowed: no copy
+            dense = matrix if sign > 0 else -matrix
+        else:
+            allowed = ~np.isnan(matrix)
+            values = np.where(allowed, matrix, 0.0)
+            scale = _scale_for(values, penalty[penalty_present])
+            dense = _scaled(values, scale) * sign
+            dense[~allowed] = FORBIDDEN
+    else:
+        table = data["arcs"]
+        tail, head = _arc_ends(table, index, settings, errors)
+        if errors:
+            raise InvalidProblem(errors)
+        scale = _scale_for(table.columns["cost"], penalty[penalty_present])
+        bounded = table.present["capacity"].copy()
+        arc_list = Arcs(id=np.arange(len(tail), dtype=np.int64), tail=tail, head=head,
+                        cost=_scaled(table.columns["cost"], scale) * sign,
+                        capacity=np.where(bounded, table.columns["capacity"], 0).astype(np.int64),
+                        bounded=bounded)
     return Network(
         ids=ids, n_sources=n_src, n_nodes=n_mid, n_sinks=n_snk,
         supply=sources.columns["supply"], demand=sinks.columns["demand"],
         penalty=np.where(penalty_present, _scaled(penalty, scale), 0),
-        soft=penalty_present.copy(),
-        tail=tail, head=head, cost=_scaled(cost, scale),
-        capacity=capacity, bounded=bounded, from_matrix=from_matrix,
-        maximize=data["objective"] == "max",
-        reject_unmet=data["unmet_demand"] == "reject",
-        cost_scale=scale,
+        soft=penalty_present.copy(), dense=dense, arc_list=arc_list,
+        maximize=sign < 0, reject_unmet=data["unmet_demand"] == "reject", cost_scale=scale,
     )
+
+
+def _scale_for(costs: np.ndarray, penalties: np.ndarray) -> int:
+    return 1 if _whole(costs) and _whole(penalties) else 10**COST_DECIMALS
 
 
 def _whole(values: np.ndarray) -> bool:
@@ -183,8 +271,8 @@ def _check_ids(ids: list[str], groups: list, max_len: int) -> list[dict[str, str
     return errors
 
 
-def _arcs_from_matrix(matrix: np.ndarray, n_src: int, n_snk: int, settings: Settings,
-                      errors: list[dict[str, str]]) -> tuple[np.ndarray, ...]:
+def _check_matrix(matrix: np.ndarray, n_src: int, n_snk: int, settings: Settings,
+                  errors: list[dict[str, str]]) -> None:
     rows, cols = matrix.shape
     _limit(rows * cols, settings.max_cells, "costs", "MAX_CELLS")
     if rows != n_src:
@@ -193,48 +281,35 @@ def _arcs_from_matrix(matrix: np.ndarray, n_src: int, n_snk: int, settings: Sett
     elif cols != n_snk and rows > 0:
         errors.append({"pointer": "/costs/0",
                        "detail": f"has {cols} entries, expected {n_snk} (one per sink)"})
-    if errors:
-        empty = np.zeros(0, np.int64)
-        return empty, empty, np.zeros(0), empty, np.zeros(0, bool)
-    r, c = np.nonzero(~np.isnan(matrix))
-    tail = r.astype(np.int64)
-    head = c.astype(np.int64) + n_src
-    cost = matrix[r, c]
-    return tail, head, cost, np.zeros(len(tail), np.int64), np.zeros(len(tail), bool)
 
 
-def _arcs_from_list(arcs: Any, index: dict[str, int], settings: Settings,
-                    errors: list[dict[str, str]]) -> tuple[np.ndarray, ...]:
+def _arc_ends(arcs: Any, index: dict[str, int], settings: Settings,
+              errors: list[dict[str, str]]) -> tuple[np.ndarray, np.ndarray]:
     n = len(arcs)
     _limit(n, settings.max_arcs, "arcs", "MAX_ARCS")
     ends = {}
     for key in ("from", "to"):
         names = arcs.columns[key]
         idx = np.fromiter(map(index.get, names, repeat(-1)), dtype=np.int64, count=n)
-        if index and (idx < 0).any():
-            for i in np.flatnonzero(idx < 0)[:50].tolist():
-                errors.append({"pointer": f"/arcs/{i}/{key}",
-                               "detail": f"unknown id {names[i]!r}"})
+        for i in np.flatnonzero(idx < 0)[:50].tolist():
+            errors.append({"pointer": f"/arcs/{i}/{key}", "detail": f"unknown id {names[i]!r}"})
         ends[key] = idx
     tail, head = ends["from"], ends["to"]
     loops = np.flatnonzero((tail == head) & (tail >= 0))
     for i in loops[:50].tolist():
         errors.append({"pointer": f"/arcs/{i}",
                        "detail": f"arc from {arcs.columns['from'][i]!r} to itself"})
-    bounded = arcs.present["capacity"]
-    capacity = np.where(bounded, arcs.columns["capacity"], 0).astype(np.int64)
-    return tail, head, arcs.columns["cost"], capacity, bounded.copy()
+    return tail, head
 
 
 @dataclass(frozen=True)
 class Extended:
-    """The extended network: user arcs first, then the virtual arcs, in fixed blocks.
+    """The virtual arcs of the extended network, in fixed blocks.
 
     Nodes: user nodes ``0..n_user-1``, then super-source ``S``, super-sink ``T``, hard
-    pool ``P``. Arc blocks (slices into the arrays): ``user``, ``supply`` (S->source),
-    ``demand`` (sink->T), ``soft`` (S->soft sink), ``pool`` (S->P, one arc) and ``hard``
-    (P->hard sink). ``cost`` is the min-form cost; ``capacity`` of unbounded user arcs is
-    :meth:`Network.unbounded_capacity`.
+    pool ``P``. Arc blocks (slices into the arrays): ``supply`` (S->source), ``demand``
+    (sink->T), ``soft`` (S->soft sink, cost = penalty), ``pool`` (S->P, one arc of capacity
+    ``hard_shortfall``) and ``hard`` (P->hard sink). All have finite capacities.
     """
 
     n_nodes: int
@@ -251,16 +326,14 @@ class Extended:
 
 
 def extend(net: Network, hard_shortfall: int) -> Extended:
-    """Build the extended network with the hard pool capped at ``hard_shortfall``."""
+    """The virtual arcs around ``net`` with the hard pool capped at ``hard_shortfall``."""
     n = net.n_user
     S, T, P = n, n + 1, n + 2
     src = np.arange(net.n_sources, dtype=np.int64)
     snk = np.arange(net.n_sinks, dtype=np.int64)
     soft, hard = snk[net.soft], snk[~net.soft]
     off = net.sink_offset
-    user_cap = np.where(net.bounded, net.capacity, net.unbounded_capacity())
     parts = [
-        ("user", net.tail, net.head, net.min_cost, user_cap),
         ("supply", np.full(len(src), S), src, np.zeros(len(src), np.int64), net.supply),
         ("demand", snk + off, np.full(len(snk), T), np.zeros(len(snk), np.int64), net.demand),
         ("soft", np.full(len(soft), S), soft + off, net.penalty[soft], net.demand[soft]),
@@ -281,17 +354,15 @@ def extend(net: Network, hard_shortfall: int) -> Extended:
                     capacity=cat(4), blocks=blocks, soft_sinks=soft, hard_sinks=hard)
 
 
-def complete_flows(net: Network, ext: Extended, user_flow: np.ndarray) -> np.ndarray:
-    """Extend a flow on the user arcs to the whole extended network (unique by conservation)."""
-    out = np.bincount(net.tail, weights=user_flow, minlength=net.n_user)
-    inn = np.bincount(net.head, weights=user_flow, minlength=net.n_user)
-    # bincount works in float64; flows stay far below 2**53, so this is exact.
-    net_out = np.rint(out - inn).astype(np.int64)
-    received = -net_out[net.sink_offset:]
-    short = net.demand - received
+def virtual_flows(net: Network, ext: Extended, flow: Flow) -> np.ndarray:
+    """Flows on the virtual arcs implied by a user flow (unique by conservation)."""
+    tail, head = net.endpoints(flow.arc)
+    net_out = np.zeros(net.n_user, np.int64)
+    np.add.at(net_out, tail, flow.amount)
+    np.subtract.at(net_out, head, flow.amount)
+    short = net.demand + net_out[net.sink_offset:]
     x = np.zeros(len(ext.tail), np.int64)
     b = ext.blocks
-    x[b["user"]] = user_flow
     x[b["supply"]] = net_out[: net.n_sources]
     x[b["demand"]] = net.demand
     x[b["soft"]] = short[ext.soft_sinks]

@@ -22,17 +22,36 @@ class ShortestPaths:
     last_improved: np.ndarray  # nodes improved in the final round
 
 
+@dataclass(frozen=True)
+class DenseBlock:
+    """Arcs from every row node to every column node, costs in a matrix.
+
+    Row ``i`` is node ``row_start + i``, column ``j`` node ``col_start + j``; a cell of at
+    least :data:`service.network.FORBIDDEN` is no arc (its candidate distance never wins,
+    since distances never exceed 0).
+    """
+
+    row_start: int
+    col_start: int
+    cost: np.ndarray
+
+
+#: Rows of a dense block relaxed at once: bounds the temporary to this x columns.
+_CHUNK_ROWS = 256
+
+
 def bellman_ford(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, *,
-                 max_rounds: int | None = None, want_pred: bool = False) -> ShortestPaths:
+                 dense: DenseBlock | None = None, max_rounds: int | None = None,
+                 want_pred: bool = False) -> ShortestPaths:
     """Shortest distances from a virtual root with 0-cost arcs to all ``n`` nodes.
 
     Parameters
     ----------
     n : number of nodes; arcs are given by ``tail``, ``head`` (node indices) and integer
-        ``cost``.
+        ``cost``, plus, optionally, a ``dense`` block of arcs given as a matrix.
     max_rounds : stop after this many rounds (default ``n + 1``, enough for any graph
         without a negative cycle).
-    want_pred : also record, per node, the arc of its last improvement.
+    want_pred : also record, per node, the arc of its last improvement (listed arcs only).
 
     Notes
     -----
@@ -44,26 +63,61 @@ def bellman_ford(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, *
     dist = np.zeros(n, np.int64)
     pred = np.full(n, -1, np.int64)
     empty = np.zeros(0, np.int64)
-    if len(tail) == 0:
-        return ShortestPaths(dist, pred, True, empty)
-    by_tail = np.argsort(tail, kind="stable")
+    by_tail = order_by(tail, n)
     indptr = np.searchsorted(tail[by_tail], np.arange(n + 1))
     active = np.arange(n)
     rounds = n + 1 if max_rounds is None else max_rounds
     for _ in range(rounds):
+        improved = []
         arcs = by_tail[_ranges(indptr[active], indptr[active + 1])]
-        h = head[arcs]
-        cand = dist[tail[arcs]] + cost[arcs]
-        better = cand < dist[h]
-        if not better.any():
+        if len(arcs):
+            h = head[arcs]
+            cand = dist[tail[arcs]] + cost[arcs]
+            better = cand < dist[h]
+            if better.any():
+                arcs, h, cand = arcs[better], h[better], cand[better]
+                np.minimum.at(dist, h, cand)
+                if want_pred:
+                    won = cand == dist[h]
+                    pred[h[won]] = arcs[won]
+                improved.append(h)
+        if dense is not None:
+            improved.append(_relax_dense(dist, active, dense))
+        active = np.unique(np.concatenate(improved)) if improved else empty
+        if len(active) == 0:
             return ShortestPaths(dist, pred, True, empty)
-        arcs, h, cand = arcs[better], h[better], cand[better]
-        np.minimum.at(dist, h, cand)
-        if want_pred:
-            won = cand == dist[h]
-            pred[h[won]] = arcs[won]
-        active = np.unique(h)
     return ShortestPaths(dist, pred, False, active)
+
+
+def _relax_dense(dist: np.ndarray, active: np.ndarray, block: DenseBlock) -> np.ndarray:
+    """Relax the block's arcs out of the active row nodes; the column nodes improved."""
+    n_rows, n_cols = block.cost.shape
+    rows = active[(active >= block.row_start) & (active < block.row_start + n_rows)]
+    if len(rows) == 0:
+        return np.zeros(0, np.int64)
+    cols = slice(block.col_start, block.col_start + n_cols)
+    best = np.full(n_cols, np.iinfo(np.int64).max, np.int64)
+    for k in range(0, len(rows), _CHUNK_ROWS):
+        part = rows[k: k + _CHUNK_ROWS]
+        cand = block.cost[part - block.row_start] + dist[part][:, None]
+        np.minimum(best, cand.min(axis=0), out=best)
+    better = best < dist[cols]
+    dist[cols] = np.where(better, best, dist[cols])
+    return np.flatnonzero(better) + block.col_start
+
+
+def order_by(keys: np.ndarray, n: int) -> np.ndarray:
+    """Stable order of non-negative integer ``keys`` below ``n``, in linear time.
+
+    numpy sorts 16-bit keys by radix; larger ones take two stable 16-bit passes (low
+    half, then high half), which beats a comparison sort on large arrays.
+    """
+    if n <= 1 << 16:
+        return np.argsort(keys.astype(np.uint16), kind="stable")
+    assert n <= 1 << 32
+    low = np.argsort((keys & 0xFFFF).astype(np.uint16), kind="stable")
+    high = (keys[low] >> 16).astype(np.uint16)
+    return low[np.argsort(high, kind="stable")]
 
 
 def _ranges(starts: np.ndarray, stops: np.ndarray) -> np.ndarray:

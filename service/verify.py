@@ -21,7 +21,7 @@ from typing import Any
 
 import numpy as np
 
-from service.network import Network
+from service.network import FORBIDDEN, Network
 
 __all__ = ["FLOAT_TOLERANCE", "verify_answer"]
 
@@ -31,6 +31,8 @@ FLOAT_TOLERANCE = 1e-9
 
 _VIRTUAL = ("super_source", "super_sink", "hard_pool")
 _INT64_SAFE = 2.0**62
+#: Rows of a cost matrix checked at once: bounds the temporary to this x columns.
+_CHUNK_ROWS = 256
 
 
 class _Checks:
@@ -105,22 +107,26 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
                "certificate is for the min form" + (" with costs negated" if net.maximize
                                                     else ""))
 
-    flow = _arc_flows(net, answer["allocation"], index, checks)
-    if flow is None:
+    used = _allocation(net, answer["allocation"], index, checks)
+    if used is None:
         checks.skip(["capacity", "conservation", "supply", "demand", "unused", "unmet",
                      "objective", "hard_shortfall", "shortfall_cut", "potentials",
                      "dual_feasibility", "complementary_slackness", "dual_objective"],
                     "the allocation does not name allowed arcs")
         return _result(checks)
+    arc, x = used
+    tail, head = net.endpoints(arc)
+    cost = net.arc_cost(arc)
 
     # -- primal feasibility -------------------------------------------------------------
-    over = _first(net.bounded & (flow > net.capacity))
+    cap, bounded = net.arc_bound(arc)
+    over = _first(bounded & (x > cap))
     checks.add("capacity", None if over is None else
-               f"arc {ids[net.tail[over]]} -> {ids[net.head[over]]} carries {flow[over]} "
-               f"over its capacity {net.capacity[over]}", "every arc within its capacity")
+               f"arc {ids[tail[over]]} -> {ids[head[over]]} carries {x[over]} "
+               f"over its capacity {cap[over]}", "every arc within its capacity")
     net_out = np.zeros(net.n_user, np.int64)
-    np.add.at(net_out, net.tail, flow)
-    np.subtract.at(net_out, net.head, flow)
+    np.add.at(net_out, tail, x)
+    np.subtract.at(net_out, head, x)
     off = net.sink_offset
     sent = net_out[: net.n_sources]
     through = net_out[net.n_sources: off]
@@ -150,8 +156,8 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
         checks.add("flow_value", None if answer["flow_value"] == routed else
                    f"flow_value is {answer['flow_value']}, the allocation routes {routed}",
                    "flow_value as routed")
-    primal = _dot(net.min_cost, flow) + _dot(net.penalty[net.soft], unmet[net.soft])
-    sign = -1 if net.maximize else 1
+    primal = _dot(cost, x) + _dot(net.penalty[net.soft], unmet[net.soft])
+    sign = net.sign
     checks.add("objective", None if _close(answer["objective"], sign * primal, scale) else
                f"objective is {answer['objective']}, recomputed {sign * primal / scale:g}",
                f"objective recomputed: {sign * primal / scale:g}")
@@ -184,23 +190,35 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     pi = np.zeros(net.n_user + 3, np.int64)
     pi[where] = grid[: len(keys)]
     pi[[S, T, P]] = grid[len(keys):]
+    labels = list(ids) + list(_VIRTUAL)
 
-    arcs = _extended_arcs(net, flow, unmet, sent, shortfall, S, T, P)
-    tail, head, cost, cap, x, names = arcs
-    reduced = cost - pi[tail] + pi[head]
-    unbounded = cap < 0
-    bad = _first(unbounded & (reduced < 0))
-    checks.add("dual_feasibility", None if bad is None else
-               f"unbounded arc {names(bad)} has negative reduced cost {reduced[bad] / scale:g}",
-               "no unbounded arc has a negative reduced cost")
-    bad = _first(((reduced > 0) & (x > 0)) | ((reduced < 0) & ~unbounded & (x < cap)))
-    checks.add("complementary_slackness", None if bad is None else
-               f"arc {names(bad)} has reduced cost {reduced[bad] / scale:g} and flow {x[bad]}"
-               f" of capacity {'unbounded' if cap[bad] < 0 else cap[bad]}",
+    # Virtual arcs, then user arcs: every arc is checked, whatever its representation.
+    v_tail, v_head, v_cost, v_cap, v_x = _virtual_arcs(net, unmet, sent, shortfall, S, T, P)
+    v_reduced = v_cost - pi[v_tail] + pi[v_head]
+    u_reduced = cost - pi[tail] + pi[head]
+    bad_dual_arc = _unbounded_negative(net, pi)
+    checks.add("dual_feasibility", None if bad_dual_arc is None else
+               f"unbounded arc {bad_dual_arc[0]} has negative reduced cost "
+               f"{bad_dual_arc[1] / scale:g}", "no unbounded arc has a negative reduced cost")
+    bad_v = _first(((v_reduced > 0) & (v_x > 0)) | ((v_reduced < 0) & (v_x < v_cap)))
+    bad_u = _first(u_reduced > 0)
+    saturated = _bounded_below_capacity(net, pi, arc, x)
+    if bad_v is not None:
+        slack = (f"arc {labels[v_tail[bad_v]]} -> {labels[v_head[bad_v]]} has reduced cost "
+                 f"{v_reduced[bad_v] / scale:g} and flow {v_x[bad_v]} of capacity "
+                 f"{v_cap[bad_v]}")
+    elif bad_u is not None:
+        slack = (f"arc {ids[tail[bad_u]]} -> {ids[head[bad_u]]} has reduced cost "
+                 f"{u_reduced[bad_u] / scale:g} and flow {x[bad_u]}")
+    elif saturated is not None:
+        slack = f"arc {saturated} has negative reduced cost and is below its capacity"
+    else:
+        slack = None
+    checks.add("complementary_slackness", slack,
                "positive reduced cost: no flow; negative: at capacity")
-    demand = int(net.demand.sum())
-    finite = ~unbounded
-    dual = demand * int(pi[S] - pi[T]) - _dot(cap[finite], np.maximum(0, -reduced[finite]))
+    demand = net.total_demand
+    dual = (demand * int(pi[S] - pi[T]) - _dot(v_cap, np.maximum(0, -v_reduced))
+            - _bounded_dual_term(net, pi))
     reported_dual = cert["dual_objective"]
     if dual != primal:
         bad_dual = f"dual objective {sign * dual / scale:g} differs from the cost " \
@@ -213,13 +231,63 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     return _result(checks)
 
 
+def _unbounded_negative(net: Network, pi: np.ndarray) -> tuple[str, int] | None:
+    """The first unbounded user arc with a negative reduced cost, as (name, reduced cost)."""
+    if net.dense is not None:
+        n_rows, n_cols = net.dense.shape
+        col_pi = pi[net.sink_offset: net.sink_offset + n_cols]
+        for start in range(0, n_rows, _CHUNK_ROWS):
+            block = net.dense[start: start + _CHUNK_ROWS]
+            # forbidden cells are 2**62: they stay far positive, no mask needed
+            reduced = block - pi[start: start + len(block)][:, None] + col_pi[None, :]
+            hit = _first((reduced < 0).reshape(-1))
+            if hit is not None:
+                r, c = divmod(hit, n_cols)
+                return (f"{net.ids[start + r]} -> {net.ids[net.sink_offset + c]}",
+                        int(reduced[r, c]))
+        return None
+    arcs = net.arcs
+    free = ~arcs.bounded
+    reduced = arcs.cost[free] - pi[arcs.tail[free]] + pi[arcs.head[free]]
+    hit = _first(reduced < 0)
+    if hit is None:
+        return None
+    t, h = arcs.tail[free][hit], arcs.head[free][hit]
+    return f"{net.ids[t]} -> {net.ids[h]}", int(reduced[hit])
+
+
+def _bounded_below_capacity(net: Network, pi: np.ndarray, arc: np.ndarray,
+                            x: np.ndarray) -> str | None:
+    """A bounded user arc with negative reduced cost and flow below capacity, named."""
+    if net.arc_list is None:
+        return None
+    arcs = net.arc_list
+    flow = np.zeros(len(arcs), np.int64)
+    flow[arc] = x
+    reduced = arcs.cost - pi[arcs.tail] + pi[arcs.head]
+    hit = _first(arcs.bounded & (reduced < 0) & (flow < arcs.capacity))
+    if hit is None:
+        return None
+    return f"{net.ids[arcs.tail[hit]]} -> {net.ids[arcs.head[hit]]}"
+
+
+def _bounded_dual_term(net: Network, pi: np.ndarray) -> int:
+    """Sum over bounded user arcs of capacity x max(0, -reduced cost)."""
+    if net.arc_list is None:
+        return 0
+    arcs = net.arc_list
+    b = arcs.bounded
+    reduced = arcs.cost[b] - pi[arcs.tail[b]] + pi[arcs.head[b]]
+    return _dot(arcs.capacity[b], np.maximum(0, -reduced))
+
+
 def _result(checks: _Checks) -> dict[str, Any]:
     return {"valid": all(c["passed"] for c in checks.items), "checks": checks.items}
 
 
-def _arc_flows(net: Network, rows: Any, index: dict[str, int], checks: _Checks
-               ) -> np.ndarray | None:
-    """Flow per arc of the network from the allocation rows, or None (check failed)."""
+def _allocation(net: Network, rows: Any, index: dict[str, int], checks: _Checks
+                ) -> tuple[np.ndarray, np.ndarray] | None:
+    """(arc ids, flows) named by the allocation rows, or None (check failed)."""
     n = len(rows)
     tails = _ids_to_index(rows.columns["from"], index)
     heads = _ids_to_index(rows.columns["to"], index)
@@ -229,56 +297,63 @@ def _arc_flows(net: Network, rows: Any, index: dict[str, int], checks: _Checks
         return None
     arc_given = rows.present.get("arc", np.zeros(n, bool))
     arc = np.full(n, -1, np.int64)
-    if arc_given.any():
-        if net.from_matrix:
+    if net.dense is not None:
+        if arc_given.any():
             checks.add("allocation_arcs", "allocation rows carry 'arc' but the problem "
                        "gives a cost matrix", "")
             return None
+        col = heads - net.sink_offset
+        cell = (tails < net.n_sources) & (col >= 0) & (col < net.n_sinks)
+        arc = np.where(cell, tails * net.n_sinks + col, -1)
+        missing = _first(~net.arc_exists(arc))
+    else:
         arc[arc_given] = rows.columns["arc"][arc_given]
-        inside = arc_given & (arc < net.n_arcs)
-        wrong = _first(arc_given & ~inside)
+        exists = net.arc_exists(arc)
+        wrong = _first(arc_given & ~exists)
         if wrong is None:
-            probe = np.where(inside, arc, 0)
-            wrong = _first(inside & ((net.tail[probe] != tails) | (net.head[probe] != heads)))
+            t, h = net.endpoints(np.where(exists, arc, 0))
+            wrong = _first(arc_given & ((t != tails) | (h != heads)))
         if wrong is not None:
             checks.add("allocation_arcs", f"allocation row {wrong}: arc {arc[wrong]} does "
                        f"not join {rows.columns['from'][wrong]} to {rows.columns['to'][wrong]}",
                        "")
             return None
-    keys = net.tail * net.n_user + net.head
-    order = np.argsort(keys, kind="stable")
-    sorted_keys = keys[order]
-    want = tails * net.n_user + heads
-    lo = np.searchsorted(sorted_keys, want, "left")
-    hi = np.searchsorted(sorted_keys, want, "right")
-    lookup = ~arc_given
-    missing = _first(lookup & (lo == hi))
+        missing = None
+        lookup = ~arc_given
+        if lookup.any():
+            arcs = net.arcs
+            keys = arcs.tail * net.n_user + arcs.head
+            order = np.argsort(keys, kind="stable")
+            sorted_keys = keys[order]
+            want = tails * net.n_user + heads
+            lo = np.searchsorted(sorted_keys, want, "left")
+            hi = np.searchsorted(sorted_keys, want, "right")
+            missing = _first(lookup & (lo == hi))
+            ambiguous = _first(lookup & (hi - lo > 1))
+            if missing is None and ambiguous is not None:
+                checks.add("allocation_arcs", f"allocation row {ambiguous}: several arcs join "
+                           "this pair; give the arc index in 'arc'", "")
+                return None
+            arc[lookup] = order[np.minimum(lo, len(order) - 1)][lookup]
     if missing is not None:
         checks.add("allocation_arcs", f"allocation row {missing}: no allowed arc "
                    f"{rows.columns['from'][missing]} -> {rows.columns['to'][missing]}", "")
         return None
-    ambiguous = _first(lookup & (hi - lo > 1))
-    if ambiguous is not None:
-        checks.add("allocation_arcs", f"allocation row {ambiguous}: several arcs join "
-                   "this pair; give the arc index in 'arc'", "")
-        return None
-    arc[lookup] = order[lo[lookup]]
     if len(np.unique(arc)) != n:
         checks.add("allocation_arcs", "an arc appears in more than one allocation row", "")
         return None
     checks.add("allocation_arcs", None, "every row names one allowed arc")
-    flow = np.zeros(net.n_arcs, np.int64)
-    flow[arc] = rows.columns["flow"]
+    x = rows.columns["flow"].astype(np.int64)
     if "cost" in rows.present:
         given = rows.present["cost"]
-        exact = flow[arc] * net.cost[arc]
+        exact = x * net.arc_cost(arc) * net.sign
         off = [i for i in np.flatnonzero(given).tolist()
                if not _close(float(rows.columns["cost"][i]), int(exact[i]), net.cost_scale)]
         checks.add("allocation_costs", None if not off else
                    f"allocation row {off[0]}: cost {rows.columns['cost'][off[0]]}, flow x "
                    f"arc cost is {exact[off[0]] / net.cost_scale:g}",
                    "row costs are flow x arc cost")
-    return flow
+    return arc, x
 
 
 def _amounts_differ(rows: Any, actual: np.ndarray, ids: list[str], index: dict[str, int],
@@ -307,12 +382,19 @@ def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
     off = net.sink_offset
     hard_in = side[off:] & ~net.soft
     demand = int(net.demand[hard_in].sum())
-    crossing = ~side[net.tail] & side[net.head]
-    open_arc = _first(crossing & ~net.bounded)
-    if open_arc is not None:
-        return (f"unbounded arc {net.ids[net.tail[open_arc]]} -> "
-                f"{net.ids[net.head[open_arc]]} crosses the cut")
-    capacity = int(net.supply[side[: net.n_sources]].sum() + net.capacity[crossing].sum())
+    capacity = int(net.supply[side[: net.n_sources]].sum())
+    if net.dense is not None:
+        outside, inside = ~side[: net.n_sources], side[off:]
+        if (net.dense[np.ix_(outside, inside)] != FORBIDDEN).any():
+            return "an unbounded matrix cell crosses the cut"
+    else:
+        arcs = net.arcs
+        crossing = ~side[arcs.tail] & side[arcs.head]
+        open_arc = _first(crossing & ~arcs.bounded)
+        if open_arc is not None:
+            return (f"unbounded arc {net.ids[arcs.tail[open_arc]]} -> "
+                    f"{net.ids[arcs.head[open_arc]]} crosses the cut")
+        capacity += int(arcs.capacity[crossing].sum())
     if demand - capacity != shortfall:
         return (f"hard sinks on the sink side need {demand}, arcs into it carry {capacity}: "
                 f"that proves {max(0, demand - capacity)} short, not {shortfall}")
@@ -325,20 +407,15 @@ def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
     return None
 
 
-def _extended_arcs(net: Network, flow: np.ndarray, unmet: np.ndarray, sent: np.ndarray,
-                   shortfall: int, S: int, T: int, P: int) -> tuple:
-    """Arcs of the extended network: (tail, head, min-form cost, capacity, flow, namer).
-
-    Capacity -1 means unbounded.
-    """
+def _virtual_arcs(net: Network, unmet: np.ndarray, sent: np.ndarray, shortfall: int,
+                  S: int, T: int, P: int) -> tuple[np.ndarray, ...]:
+    """Virtual arcs of the extended network: (tail, head, min-form cost, capacity, flow)."""
     off = net.sink_offset
     src = np.arange(net.n_sources)
     snk = np.arange(net.n_sinks)
     soft, hard = snk[net.soft], snk[~net.soft]
     zeros = np.zeros
     blocks = [
-        (net.tail, net.head, net.sign * net.cost,
-         np.where(net.bounded, net.capacity, -1), flow),
         (np.full(len(src), S), src, zeros(len(src), np.int64), net.supply, sent),
         (snk + off, np.full(len(snk), T), zeros(len(snk), np.int64), net.demand,
          net.demand),
@@ -349,10 +426,5 @@ def _extended_arcs(net: Network, flow: np.ndarray, unmet: np.ndarray, sent: np.n
         (np.full(len(hard), P), hard + off, zeros(len(hard), np.int64), net.demand[hard],
          unmet[hard]),
     ]
-    cols = [np.concatenate([np.asarray(b[k], np.int64) for b in blocks]) for k in range(5)]
-    labels = list(net.ids) + list(_VIRTUAL)
-
-    def names(a: int) -> str:
-        return f"{labels[cols[0][a]]} -> {labels[cols[1][a]]}"
-
-    return (*cols, names)
+    return tuple(np.concatenate([np.asarray(b[k], np.int64) for b in blocks])
+                 for k in range(5))

@@ -10,6 +10,7 @@ import pytest
 from service import certificate, pipeline
 from service.app import create_app
 from service.engines import dense_assignment
+from service.network import Flow
 
 # scipy.optimize.linear_sum_assignment docstring example: the optimum is 5.
 PROBLEM = {
@@ -34,10 +35,8 @@ def _assert_failure_document(response) -> None:
 
 def test_suboptimal_engine_flow_is_refused(client, monkeypatch, caplog):
     def worse(net):
-        # the identity matching costs 4 + 0 + 2 = 6, not optimal
-        flow = np.zeros(net.n_arcs, np.int64)
-        flow[[0, 4, 8]] = 1
-        return flow
+        # the identity matching (cells 0, 4, 8) costs 4 + 0 + 2 = 6, not optimal
+        return Flow(arc=np.array([0, 4, 8]), amount=np.ones(3, np.int64))
 
     monkeypatch.setattr(dense_assignment, "solve", worse)
     with caplog.at_level(logging.ERROR):

@@ -6,15 +6,15 @@ import numpy as np
 from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import min_weight_full_bipartite_matching
 
-from service.network import Network
+from service.network import Flow, Network
 
 __all__ = ["NAME", "solve"]
 
 NAME = "min_weight_full_bipartite_matching"
 
 
-def solve(net: Network) -> np.ndarray | None:
-    """Flows (0/1 per arc) of a least-cost matching covering the smaller side, or None.
+def solve(net: Network) -> Flow | None:
+    """A least-cost matching covering the smaller side, or None.
 
     Notes
     -----
@@ -24,10 +24,11 @@ def solve(net: Network) -> np.ndarray | None:
     the same amount and not the optimum.
     """
     n, m = net.n_sources, net.n_sinks
-    rows, cols = net.tail, net.head - net.sink_offset
-    if net.n_arcs == 0:
+    arcs = net.arcs
+    if len(arcs) == 0:
         return None
-    weights = net.min_cost - net.min_cost.min() + 1
+    rows, cols = arcs.tail, arcs.head - net.sink_offset
+    weights = arcs.cost - arcs.cost.min() + 1
     graph = csr_matrix((weights.astype(np.float64), (rows, cols)), shape=(n, m))
     try:
         r, c = min_weight_full_bipartite_matching(graph)
@@ -35,7 +36,6 @@ def solve(net: Network) -> np.ndarray | None:
         return None
     keys = rows * m + cols
     order = np.argsort(keys)
-    chosen = order[np.searchsorted(keys[order], r.astype(np.int64) * m + c)]
-    flow = np.zeros(net.n_arcs, np.int64)
-    flow[chosen] = 1
-    return flow
+    chosen = arcs.id[order[np.searchsorted(keys[order], r.astype(np.int64) * m + c)]]
+    chosen.sort()
+    return Flow(arc=chosen, amount=np.ones(len(chosen), np.int64))
