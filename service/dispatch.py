@@ -23,6 +23,7 @@ from service.feasibility import (
     shortfall_of_matching,
 )
 from service.network import Arcs, Flow, Network
+from service.paths import order_by
 
 #: A cost matrix with at least this share of allowed cells goes to the dense engine.
 DENSE_SHARE = 0.5
@@ -49,14 +50,15 @@ def shape_of(net: Network) -> str:
                  and bool(np.all(arcs.head >= net.sink_offset)))
     if not bipartite:
         return "transshipment"
-    if unit and bool(np.all(arcs.capacity[arcs.bounded] == 1)) and _pairs_unique(arcs):
+    if unit and bool(np.all(arcs.capacity[arcs.bounded] == 1)) and _pairs_unique(net, arcs):
         return "assignment"
     return "transportation"
 
 
-def _pairs_unique(arcs: Arcs) -> bool:
-    keys = arcs.tail * (int(arcs.head.max(initial=0)) + 1) + arcs.head
-    return len(np.unique(keys)) == len(keys)
+def _pairs_unique(net: Network, arcs: Arcs) -> bool:
+    keys = arcs.tail * net.n_sinks + (arcs.head - net.sink_offset)
+    ordered = keys[order_by(keys, net.n_sources * net.n_sinks)]
+    return not bool(np.any(ordered[1:] == ordered[:-1]))
 
 
 def solve(net: Network) -> Solution:

@@ -66,6 +66,7 @@ def bellman_ford(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, *
     by_tail = order_by(tail, n)
     indptr = np.searchsorted(tail[by_tail], np.arange(n + 1))
     active = np.arange(n)
+    slot = np.zeros(n, np.int64)            # scratch for de-duplicating improved nodes
     rounds = n + 1 if max_rounds is None else max_rounds
     for _ in range(rounds):
         improved = []
@@ -83,7 +84,7 @@ def bellman_ford(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, *
                 improved.append(h)
         if dense is not None:
             improved.append(_relax_dense(dist, active, dense))
-        active = np.unique(np.concatenate(improved)) if improved else empty
+        active = _distinct(np.concatenate(improved), slot) if improved else empty
         if len(active) == 0:
             return ShortestPaths(dist, pred, True, empty)
     return ShortestPaths(dist, pred, False, active)
@@ -104,6 +105,13 @@ def _relax_dense(dist: np.ndarray, active: np.ndarray, block: DenseBlock) -> np.
     better = best < dist[cols]
     dist[cols] = np.where(better, best, dist[cols])
     return np.flatnonzero(better) + block.col_start
+
+
+def _distinct(nodes: np.ndarray, slot: np.ndarray) -> np.ndarray:
+    """The distinct values of ``nodes`` in linear time (``slot`` is scratch of size n)."""
+    position = np.arange(len(nodes))
+    slot[nodes] = position                  # the last write for each node wins
+    return nodes[slot[nodes] == position]
 
 
 def order_by(keys: np.ndarray, n: int) -> np.ndarray:

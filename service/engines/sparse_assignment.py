@@ -7,6 +7,7 @@ from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import min_weight_full_bipartite_matching
 
 from service.network import Flow, Network
+from service.paths import order_by
 
 __all__ = ["NAME", "solve"]
 
@@ -35,7 +36,7 @@ def solve(net: Network) -> Flow | None:
     except ValueError:  # "no full matching exists"
         return None
     keys = rows * m + cols
-    order = np.argsort(keys)
+    order = order_by(keys, n * m)
     chosen = arcs.id[order[np.searchsorted(keys[order], r.astype(np.int64) * m + c)]]
     chosen.sort()
     return Flow(arc=chosen, amount=np.ones(len(chosen), np.int64))
