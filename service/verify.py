@@ -90,8 +90,11 @@ def _ids_to_index(names: list[str], index: dict[str, int]) -> np.ndarray:
 
 
 def _first(mask: np.ndarray) -> int | None:
-    hits = np.flatnonzero(mask)
-    return int(hits[0]) if len(hits) else None
+    """Index of the first True, or None."""
+    if len(mask) == 0:
+        return None
+    i = int(np.argmax(mask))
+    return i if mask[i] else None
 
 
 def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
