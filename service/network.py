@@ -160,12 +160,6 @@ class Network:
             return np.zeros(len(arc), np.int64), np.zeros(len(arc), bool)
         return self.arcs.capacity[arc], self.arcs.bounded[arc]
 
-    def kind_of(self, index: int) -> str:
-        if index < self.n_sources:
-            return "source"
-        return "node" if index < self.sink_offset else "sink"
-
-
 def _limit(count: int, limit: int, what: str, setting: str) -> None:
     if count > limit:
         raise TooLarge(f"{what} has {count} entries, more than the limit of {limit} "
