@@ -337,7 +337,8 @@ def _allocation(net: Network, rows: Any, index: dict[str, int], checks: _Checks
                 checks.add("allocation_arcs", f"allocation row {ambiguous}: several arcs join "
                            "this pair; give the arc index in 'arc'", "")
                 return None
-            arc[lookup] = order[np.minimum(lo, len(order) - 1)][lookup]
+            if missing is None:
+                arc[lookup] = order[lo[lookup]]
     if missing is not None:
         checks.add("allocation_arcs", f"allocation row {missing}: no allowed arc "
                    f"{rows.columns['from'][missing]} -> {rows.columns['to'][missing]}", "")
