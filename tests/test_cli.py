@@ -5,8 +5,10 @@ The same commands over real HTTP are in test_gunicorn.py.
 
 from __future__ import annotations
 
+import csv
 import io
 import json
+import re
 import socket
 from pathlib import Path
 from typing import Any
@@ -257,3 +259,371 @@ def test_serve_without_config_file_uses_our_defaults(monkeypatch):
     assert "--config" not in argv
     assert (_flag(argv, "--bind"), _flag(argv, "--workers")) == ("127.0.0.1:8080", "2")
     assert _flag(cli._gunicorn_argv("::1", 81, None), "--bind") == "[::1]:81"
+
+
+# --- CSV cost tables ------------------------------------------------------------------
+
+# Worked by hand: ticket-2 (2 units) can only come from tech-a, which then has no slot
+# left, so ticket-1 goes to tech-b and the soft ticket-3 waits at its penalty:
+# 2 x 25 + 12 + 30 = 92. Common practice, no source.
+TABLE = """\
+,ticket-1,ticket-2,ticket-3,supply
+tech-a,10,25,,2
+tech-b,12,,15,1
+demand,1,2,1,
+penalty,,,30,
+"""
+
+
+def _csv(tmp_path: Path, text: str = TABLE, name: str = "costs.csv",
+         encoding: str = "utf-8") -> str:
+    path = tmp_path / name
+    path.write_bytes(text.encode(encoding))
+    return str(path)
+
+
+def test_csv_table_is_solved_with_supply_demand_and_penalty(capsys, tmp_path):
+    code, out, err = _run(capsys, "solve", _csv(tmp_path), "--local")
+    assert code == 0, err
+    answer = json.loads(out)
+    assert answer["objective"] == 92
+    assert {(r["from"], r["to"], r["flow"]) for r in answer["allocation"]} == {
+        ("tech-a", "ticket-2", 2), ("tech-b", "ticket-1", 1)}
+    assert answer["unmet"] == [{"id": "ticket-3", "amount": 1}]
+
+
+def test_csv_empty_cells_are_pairs_not_allowed(capsys, tmp_path):
+    # Without the supply column and the extra rows every supply and demand is 1 and hard;
+    # the cheap-looking pair tech-b -> ticket-2 does not exist, so tech-b takes ticket-1.
+    table = ",ticket-1,ticket-2\ntech-a,5,1\ntech-b,9,\n"
+    answer = _solve_local(capsys, _csv(tmp_path, table))
+    assert {(r["from"], r["to"]) for r in answer["allocation"]} == {
+        ("tech-a", "ticket-2"), ("tech-b", "ticket-1")}
+    assert answer["objective"] == 10
+
+
+def test_csv_with_bom_semicolons_and_spaces(capsys, tmp_path):
+    table = "\ufeff ; ticket-1 ; ticket-2\n tech-a ; 4 ; 7.5\n tech-b ;  ; 2\n"
+    code, out, err = _run(capsys, "solve", _csv(tmp_path, table), "--local",
+                          "--delimiter", ";")
+    assert code == 0, err
+    assert json.loads(out)["objective"] == 6
+
+
+def test_csv_from_standard_input_needs_input_csv(capsys, monkeypatch):
+    monkeypatch.setattr("sys.stdin", io.TextIOWrapper(io.BytesIO(TABLE.encode())))
+    code, out, err = _run(capsys, "solve", "-", "--input", "csv", "--local")
+    assert code == 0, err
+    assert json.loads(out)["objective"] == 92
+
+
+def test_csv_column_named_supply_can_be_a_sink(capsys, tmp_path):
+    table = ",supply,ticket-1\ntech-a,3,5\n"
+    answer = _solve_local(capsys, _csv(tmp_path, table))      # "supply" read as supply 3
+    assert [(r["to"]) for r in answer["allocation"]] == ["ticket-1"]
+    code, out, _ = _run(capsys, "solve", _csv(tmp_path, table), "--local",
+                        "--supply-column", "", "--format", "csv")
+    assert code == 0
+    assert "tech-a,supply,1,3" in out.splitlines()
+
+
+@pytest.mark.parametrize(("table", "message"), [
+    ("", "no rows"),
+    ("corner\ntech-a\n", "names no sinks"),
+    (",t1,t2\ntech-a,1\n", "line 2: 2 cells, but the first row has 3"),
+    (",t1\ntech-a,cheap\n", "line 2, column 2: 'cheap' is not a number"),
+    (",t1\ntech-a,nan\n", "line 2, column 2: 'nan' is not a finite number"),
+    (",t1\ntech-a,1,5\n", "line 2: more cells than the first row"),
+    (",t1,t1\ntech-a,1,2\n", "line 1, column 3: id 't1' appears twice"),
+    (",t1\ntech-a,1\ntech-a,2\n", "line 3, column 1: id 'tech-a' appears twice"),
+    (",t1,supply\ntech-a,1,1.5\n", "line 2, column 3: supply must be a whole number"),
+    (",t1\ntech-a,1\ndemand,-1\n", "line 3, column 2: demand must be a whole number"),
+    (",t1\ntech-a,1\npenalty,-3\n", "line 3, column 2: a penalty must be >= 0"),
+    (",t1,supply\ntech-a,1,\ndemand,1,4\n", "line 3, column 3: the 'demand' row has no supply"),
+    (",t1\n,1\n", "line 2, column 1: the row has no source id"),
+    (",t1\n", "no source rows"),
+])
+def test_csv_mistakes_exit_1_naming_line_and_column(capsys, tmp_path, table, message):
+    code, out, err = _run(capsys, "solve", _csv(tmp_path, table), "--local")
+    assert code == 1
+    assert out == ""
+    assert message in err
+
+
+def test_csv_decimal_comma_gets_a_hint(capsys, tmp_path):
+    code, _, err = _run(capsys, "solve", _csv(tmp_path, ";t1\ntech-a;1,5\n"), "--local",
+                        "--delimiter", ";")
+    assert code == 1
+    assert "'1,5' is not a number; write decimals with a dot" in err
+
+
+def test_csv_that_is_not_utf8_exits_1(capsys, tmp_path):
+    code, _, err = _run(capsys, "solve", _csv(tmp_path, ",t\u00e9\nx,1\n", encoding="latin-1"),
+                        "--local")
+    assert code == 1
+    assert "not UTF-8" in err
+
+
+def test_csv_numbers_out_of_range_are_refused_by_the_service(capsys, tmp_path):
+    # The reader checks the form of a cell; the service alone owns the limits.
+    code, _, err = _run(capsys, "solve", _csv(tmp_path, ",t1\ntech-a,2000000000\n"), "--local")
+    assert code == 1
+    assert any(e["pointer"] == "/costs/0/0" for e in json.loads(err)["errors"])
+
+
+# --- output formats -------------------------------------------------------------------
+
+def test_format_csv_is_the_allocation_for_a_spreadsheet(capsys, tmp_path):
+    code, out, err = _run(capsys, "solve", _csv(tmp_path), "--local", "--format", "csv")
+    assert code == 0, err
+    rows = list(csv.reader(io.StringIO(out)))
+    assert rows == [["from", "to", "flow", "cost"], ["tech-a", "ticket-2", "2", "50"],
+                    ["tech-b", "ticket-1", "1", "12"]]
+
+
+def test_format_csv_defuses_ids_a_spreadsheet_would_run(capsys, tmp_path):
+    # OWASP "CSV Injection": a cell starting with = + - @ is a formula to a spreadsheet.
+    problem = {"sources": [{"id": "=HYPERLINK(1)"}], "sinks": [{"id": "@sum"}],
+               "costs": [[-4]]}
+    code, out, _ = _run(capsys, "solve", _write(tmp_path, problem), "--local", "--format",
+                        "csv")
+    assert code == 0
+    assert list(csv.reader(io.StringIO(out)))[1] == ["'=HYPERLINK(1)", "'@sum", "1", "-4"]
+
+
+def test_format_table_reads_like_a_table_and_carries_the_verdict(capsys, tmp_path):
+    code, out, err = _run(capsys, "solve", _csv(tmp_path), "--local", "--format", "table")
+    assert code == 0, err
+    lines = out.splitlines()
+    assert lines[0] == "optimal allocation (transportation, solver min_cost_flow)"
+    header = next(line for line in lines if line.strip().startswith("from"))
+    assert header.split() == ["from", "to", "flow", "cost"]
+    row = next(line for line in lines if "ticket-2" in line)
+    assert row.split() == ["tech-a", "ticket-2", "2", "50"]
+    # Columns are aligned: the flow column ends at the same place in every row.
+    flows = [line for line in lines if line.strip().startswith(("from", "tech-", "total"))]
+    ends = {[m.end() for m in re.finditer(r"\S+", line)][-2] for line in flows}
+    assert len(flows) == 4 and len(ends) == 1
+    assert "ticket-3      1  soft, penalty 30 per unit" in out
+    assert "unused supply: none" in lines
+    assert "objective: 92 (least total cost plus penalties)" in lines
+    assert lines[-1].startswith("certificate check: VALID")
+
+
+def test_format_table_for_a_json_maximisation(capsys, tmp_path):
+    problem = {"sources": [{"id": "crew-a"}, {"id": "crew-b"}],
+               "sinks": [{"id": "job-1"}, {"id": "job-2"}], "costs": [[9, 4], [7, 1]]}
+    code, out, _ = _run(capsys, "solve", _write(tmp_path, problem), "--local",
+                        "--objective", "max", "--format", "table")
+    assert code == 0
+    assert "objective: 11 (greatest total score less penalties)" in out
+    assert out.splitlines()[2].split() == ["from", "to", "flow", "score"]
+
+
+def test_table_exits_1_when_the_check_of_the_answer_fails(capsys, tmp_path, monkeypatch):
+    # Simulates a server whose /v1/verify rejects its own answer: not a result to act on.
+    real = cli._local_post
+
+    def lying_verifier() -> cli.Post:
+        post = real()
+
+        def answer(path: str, body: bytes) -> cli.Reply:
+            if path == "/v1/verify":
+                return cli.Reply(200, "application/json", json.dumps(
+                    {"valid": False, "checks": [{"name": "objective", "passed": False,
+                                                 "detail": "objective is 1, recomputed 2"}]}))
+            return post(path, body)
+
+        return answer
+
+    monkeypatch.setattr(cli, "_local_post", lying_verifier)
+    code, out, _ = _run(capsys, "solve", _csv(tmp_path), "--local", "--format", "table")
+    assert code == 1
+    assert out.splitlines()[-1] == ("certificate check: INVALID (1 of 1 checks failed: "
+                                    "objective)")
+
+
+def test_objective_option_replaces_the_json_field(capsys, tmp_path):
+    problem = {"sources": [{"id": "crew-a"}], "sinks": [{"id": "job-1"}, {"id": "job-2"}],
+               "costs": [[3, 8]], "objective": "min"}
+    path = _write(tmp_path, problem)
+    assert _solve_local(capsys, path)["allocation"][0]["to"] == "job-1"
+    code, out, _ = _run(capsys, "solve", path, "--local", "--objective", "max")
+    assert code == 0
+    answer = json.loads(out)
+    assert answer["allocation"][0]["to"] == "job-2"
+    assert answer["certificate"]["negated"] is True
+
+
+def test_unmet_demand_reject_on_a_csv_exits_2(capsys, tmp_path):
+    table = ",stop-1,stop-2\nvan-a,3,4\n"
+    code, out, err = _run(capsys, "solve", _csv(tmp_path, table), "--local",
+                          "--unmet-demand", "reject")
+    assert code == 2
+    assert out == ""
+    assert json.loads(err)["witness"]["shortfall"] == 1
+
+
+def test_output_file_holds_the_result_and_stdout_stays_empty(capsys, tmp_path):
+    target = tmp_path / "plan.csv"
+    code, out, err = _run(capsys, "solve", _csv(tmp_path), "--local", "--format", "csv",
+                          "-o", str(target))
+    assert code == 0, err
+    assert out == ""
+    assert target.read_text().startswith("from,to,flow,cost\n")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["costs.csv", "plan.csv"]
+
+
+def test_output_file_is_not_touched_when_solving_fails(capsys, tmp_path):
+    target = tmp_path / "plan.json"
+    target.write_text("yesterday's plan")
+    table = ",stop-1,stop-2\nvan-a,3,4\n"
+    code, _, _ = _run(capsys, "solve", _csv(tmp_path, table), "--local",
+                      "--unmet-demand", "reject", "-o", str(target))
+    assert code == 2
+    assert target.read_text() == "yesterday's plan"
+
+
+def test_output_into_a_missing_folder_exits_1(capsys, tmp_path):
+    code, _, err = _run(capsys, "solve", _csv(tmp_path), "--local", "-o",
+                        str(tmp_path / "no" / "such" / "plan.json"))
+    assert code == 1
+    assert "cannot write" in err
+
+
+# --- progress -------------------------------------------------------------------------
+
+def test_small_solve_is_silent_on_stderr(capsys, tmp_path):
+    _, _, err = _run(capsys, "solve", _csv(tmp_path), "--local")
+    assert err == ""
+
+
+def test_progress_lines_on_request(capsys, tmp_path):
+    code, out, err = _run(capsys, "solve", _csv(tmp_path), "--local", "--progress")
+    assert code == 0
+    json.loads(out)                       # stdout is still the answer alone
+    lines = err.splitlines()
+    assert lines[0].startswith("certimatch: read ")
+    assert "2 sources x 3 sinks, 4 of 6 pairs allowed" in lines[0]
+    assert "to /v1/solve in this process" in lines[1]
+    assert lines[2].startswith("certimatch: answered 200 in ")
+    assert lines[3] == "certimatch: optimal: objective 92, 3 units routed, 1 sink short"
+
+
+def test_big_bodies_get_progress_unless_quiet(capsys, tmp_path, monkeypatch):
+    monkeypatch.setattr(cli, "PROGRESS_BYTES", 10)
+    _, _, err = _run(capsys, "solve", _csv(tmp_path), "--local")
+    assert "answered 200" in err
+    _, _, err = _run(capsys, "solve", _csv(tmp_path), "--local", "--quiet")
+    assert err == ""
+
+
+def test_progress_names_the_url(capsys, tmp_path):
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    code, _, err = _run(capsys, "solve", _csv(tmp_path), "--url", f"http://127.0.0.1:{port}/",
+                        "--timeout", "5", "--progress")
+    assert code == 1
+    assert f"posting 213 bytes to http://127.0.0.1:{port}/v1/solve" in err
+
+
+def test_quiet_and_progress_together_are_a_usage_error(capsys, tmp_path):
+    code, _, err = _run(capsys, "solve", _csv(tmp_path), "--quiet", "--progress")
+    assert code == 1
+    assert "not allowed with" in err
+
+
+# --- help -----------------------------------------------------------------------------
+
+def test_main_help_has_examples_and_exit_codes(capsys):
+    code, out, _ = _run(capsys, "--help")
+    assert code == 0
+    for command in ("serve", "solve", "verify", "report", "demo"):
+        assert f"\n    {command} " in out, command
+    assert "examples:" in out and "exit codes" in out
+    assert "certimatch report problem.json --answer answer.json -o report.html" in out
+
+
+def test_solve_help_explains_csv_formats_and_exit_codes(capsys):
+    code, out, _ = _run(capsys, "solve", "--help")
+    assert code == 0
+    for words in ("CSV cost tables", "empty cell", "--supply-column", "--demand-row",
+                  "--penalty-row", "--format {json,table,csv}", "-o FILE", "--quiet",
+                  "--unmet-demand {minimize,reject}", "exit codes: 0 optimal; 2"):
+        assert words in out, words
+
+
+def test_report_help_explains_the_page(capsys):
+    code, out, _ = _run(capsys, "report", "--help")
+    assert code == 0
+    for words in ("--answer ANSWER", "--format {html,svg}", "no script", "exit codes: 0"):
+        assert words in out, words
+
+
+# --- report ---------------------------------------------------------------------------
+
+def test_report_of_a_solved_problem_is_valid(capsys, tmp_path, solved_demo):
+    target = tmp_path / "report.html"
+    code, out, err = _run(capsys, "report", _write(tmp_path, solved_demo), "-o", str(target))
+    assert code == 0, err
+    assert out == ""
+    page = target.read_text()
+    assert page.startswith("<!DOCTYPE html>")
+    assert "VALID" in page and "NOT VALID" not in page
+
+
+def test_report_of_a_tampered_answer_exits_2_and_still_writes(capsys, tmp_path, solved_demo):
+    _shift_a_potential(solved_demo["answer"])
+    target = tmp_path / "report.html"
+    code, _, _ = _run(capsys, "report", _write(tmp_path, solved_demo), "-o", str(target))
+    assert code == 2
+    assert "NOT VALID" in target.read_text()
+
+
+def test_report_from_problem_and_answer_files(capsys, tmp_path):
+    problem = _csv(tmp_path)
+    code, out, _ = _run(capsys, "solve", problem, "--local")
+    assert code == 0
+    answer = tmp_path / "answer.json"
+    answer.write_text(out)
+    code, out, err = _run(capsys, "report", problem, "--answer", str(answer))
+    assert code == 0, err
+    assert "<title>Audit report \u2014 VALID</title>" in out
+
+
+def test_report_svg_chosen_by_the_output_name(capsys, tmp_path, solved_demo):
+    target = tmp_path / "network.svg"
+    code, _, err = _run(capsys, "report", _write(tmp_path, solved_demo), "-o", str(target))
+    assert code == 0, err
+    assert target.read_text().startswith('<?xml version="1.0" encoding="UTF-8"?>\n<svg')
+
+
+def test_report_without_an_answer_exits_1_saying_how(capsys, tmp_path):
+    code, _, err = _run(capsys, "report", str(DEMO_DIR / "repair_tickets.json"))
+    assert code == 1
+    assert "--answer" in err
+
+
+def test_report_refuses_two_answers(capsys, tmp_path, solved_demo):
+    path = _write(tmp_path, solved_demo)
+    code, _, err = _run(capsys, "report", path, "--answer", path)
+    assert code == 1
+    assert "already holds" in err
+
+
+def test_report_of_an_invalid_problem_exits_1_with_the_problem_document(capsys, tmp_path,
+                                                                        solved_demo):
+    solved_demo["sinks"][0]["demand"] = -1
+    code, out, err = _run(capsys, "report", _write(tmp_path, solved_demo))
+    assert code == 1
+    assert out == ""
+    assert any(e["pointer"] == "/sinks/0/demand" for e in json.loads(err)["errors"])
+
+
+def test_report_of_a_file_that_is_not_json_exits_1(capsys, tmp_path):
+    path = tmp_path / "answer.json"
+    path.write_text('{"sources": NaN}')
+    code, _, err = _run(capsys, "report", str(path))
+    assert code == 1
+    assert "not valid JSON" in err
