@@ -2,28 +2,180 @@
 
 Use: ``gunicorn -c deploy/gunicorn.conf.py 'service.app:create_app()'``.
 
-Solving is CPU-bound numpy/OR-Tools work, so one synchronous worker per core is the right
-shape: threads would only contend for the same core, and a slow solve must not block
+Solving is CPU-bound numpy/OR-Tools work, so one synchronous worker per usable core is the
+right shape: threads would only contend for the same core, and a slow solve must not block
 other requests of the same worker's queue longer than needed.
+
+Every value comes from a ``CERTIMATCH_*`` variable of the one settings table
+(``service/settings.py``), read and checked here, in the master, before any worker starts:
+a bad value stops gunicorn with a message naming the variable instead of a crash loop of
+workers. Loading this file has no side effects (tests read it); directories, environment
+and logging are set up by the ``on_starting`` hook.
 """
 
-import multiprocessing
-import os
+from __future__ import annotations
 
-# Loopback unless told otherwise: the service has no authentication of its own yet.
-bind = os.environ.get("CERTIMATCH_BIND", "127.0.0.1:8080")
-workers = int(os.environ.get("CERTIMATCH_WORKERS", multiprocessing.cpu_count()))
+import math
+import os
+import shutil
+import tempfile
+from pathlib import Path
+from typing import Any
+
+from gunicorn import glogging
+
+from service.settings import load_server_settings, load_settings
+
+try:
+    # Checked now so that a bad CERTIMATCH_MAX_* stops the master, not each worker in turn.
+    load_settings()
+    _server = load_server_settings()
+except ValueError as e:
+    # SystemExit passes gunicorn's "Failed to read config file" traceback: one plain line
+    # that names the variable and the values it allows is what an operator needs to read.
+    raise SystemExit(f"certimatch: {e}") from None
+
+
+def _cgroup_cpu_limit(root: Path = Path("/sys/fs/cgroup")) -> float | None:
+    """CPUs allowed by the cgroup's CFS quota (a container's CPU limit), or None."""
+    try:
+        quota, period = (root / "cpu.max").read_text().split()[:2]   # cgroup v2
+        if quota != "max":
+            return int(quota) / int(period)
+        return None
+    except (OSError, ValueError):
+        pass
+    try:
+        quota_us = int((root / "cpu" / "cpu.cfs_quota_us").read_text())  # cgroup v1
+        period_us = int((root / "cpu" / "cpu.cfs_period_us").read_text())
+    except (OSError, ValueError):
+        return None
+    return quota_us / period_us if quota_us > 0 and period_us > 0 else None
+
+
+def usable_cores(root: Path = Path("/sys/fs/cgroup")) -> int:
+    """Cores this process may run on: CPU affinity, capped by a cgroup CPU limit.
+
+    ``os.cpu_count()`` counts the host's cores; in a container limited to 2 CPUs on a
+    64-core node it would start 64 workers that share 2 CPUs of time and 64 x the memory.
+    """
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        cores = os.cpu_count() or 1
+    limit = _cgroup_cpu_limit(root)
+    if limit is not None:
+        cores = min(cores, math.ceil(limit))
+    return max(1, cores)
+
+
+# Loopback unless told otherwise: the service has no authentication of its own yet. The
+# container image and the Kubernetes ConfigMap set CERTIMATCH_BIND=0.0.0.0:8080.
+bind = _server.bind
+workers = _server.workers or usable_cores()
 worker_class = "sync"
-# A large problem may take tens of seconds end to end; past this the worker is restarted.
-timeout = int(os.environ.get("CERTIMATCH_WORKER_TIMEOUT", "120"))
-# On SIGTERM, let requests in flight finish for this long before exiting.
-graceful_timeout = 30
+# A large problem may take tens of seconds end to end; past this the worker is killed and
+# replaced, and the client gets a closed connection rather than a hung one.
+timeout = _server.worker_timeout
+# On SIGTERM (a rolling update, systemd stop), requests in flight get this long to finish.
+# Kubernetes' terminationGracePeriodSeconds and systemd's TimeoutStopSec are set above it.
+graceful_timeout = _server.graceful_timeout
+# The sync worker closes each connection after its answer; keepalive matters only to
+# gunicorn's other worker types and is kept short in case one is chosen.
 keepalive = 5
-# Recycle workers now and then so that memory of one huge request does not linger.
+# Recycle workers now and then so that the memory of one huge request does not linger;
+# the jitter keeps all workers from restarting at the same moment.
 max_requests = 1000
 max_requests_jitter = 100
+# The app is imported in each worker after the fork, never in the master: the metrics
+# directory below must exist and be in the environment before prometheus_client is
+# imported, and every worker must hold its own solver state.
+preload_app = False
+# The worker heartbeat is a file touched every second; on a container's overlay or a slow
+# disk that write can stall a worker into a timeout, while /dev/shm is memory.
+worker_tmp_dir = "/dev/shm" if os.access("/dev/shm", os.W_OK) else None
 # gunicorn >= 25 opens a control socket at one path per user; several servers on one
 # machine (tests, a demo, a dev server) would delete each other's. We do not use it.
 control_socket_disable = True
-accesslog = "-"
+loglevel = _server.log_level
 errorlog = "-"
+# The app writes one JSON line per request itself (service/observe.py), with the request
+# id; gunicorn's access log would repeat it, so it is off unless CERTIMATCH_ACCESS_LOG is
+# true, and then it is JSON too (JsonLogger.access below).
+accesslog = "-" if _server.access_log else None
+
+
+class JsonLogger(glogging.Logger):  # type: ignore[misc]
+    """gunicorn's own log lines (start, workers, errors, access) as JSON lines."""
+
+    def setup(self, cfg: Any) -> None:
+        super().setup(cfg)
+        from service.observe import JsonFormatter  # imports no prometheus_client
+
+        for logger in (self.error_log, self.access_log):
+            for handler in logger.handlers:
+                handler.setFormatter(JsonFormatter())
+
+    def access(self, resp: Any, req: Any, environ: dict[str, Any], request_time: Any) -> None:
+        # Built as a dict and dumped by the formatter: a format string would not escape a
+        # backslash or a control character in a path into valid JSON.
+        if not self.cfg.accesslog:
+            return
+        headers = dict((k.lower(), v) for k, v in getattr(resp, "headers", []))
+        seconds = request_time.seconds + request_time.microseconds / 1e6
+        status = str(resp.status).split(None, 1)[0]
+        self.access_log.info("access", extra={"event": {
+            "remote_addr": environ.get("REMOTE_ADDR"),
+            "method": environ.get("REQUEST_METHOD"),
+            "path": environ.get("PATH_INFO"),   # no query string: it may hold secrets
+            "status": int(status) if status.isdigit() else status,
+            "duration_ms": round(seconds * 1000, 3),
+            "bytes_out": getattr(resp, "sent", None),
+            "request_id": headers.get("x-request-id"),
+        }})
+
+
+logger_class = JsonLogger
+
+#: Prefix of the metrics directory this file creates; on_exit removes only such a one.
+_OWN_DIR_PREFIX = "certimatch-metrics-"
+_METRIC_FILES = ("counter_*.db", "gauge_*.db", "histogram_*.db", "summary_*.db")
+
+
+def on_starting(server: Any) -> None:
+    """In the master, before any worker: the metrics directory and the JSON log handler."""
+    path = os.environ.get("PROMETHEUS_MULTIPROC_DIR")
+    if path:
+        # A directory given by the operator may hold the files of a previous run, whose
+        # counts would be added to this one's; prometheus_client's multiprocess mode wants
+        # it emptied before start-up. Only its own files are removed.
+        os.makedirs(path, exist_ok=True)
+        for pattern in _METRIC_FILES:
+            for stale in Path(path).glob(pattern):
+                stale.unlink(missing_ok=True)
+    else:
+        os.environ["PROMETHEUS_MULTIPROC_DIR"] = tempfile.mkdtemp(prefix=_OWN_DIR_PREFIX)
+    from service.observe import configure_logging
+
+    configure_logging(_server.log_level)
+
+
+def on_reload(server: Any) -> None:
+    from service.observe import configure_logging
+
+    configure_logging(load_server_settings().log_level)
+
+
+def child_exit(server: Any, worker: Any) -> None:
+    """A worker ended (recycled, killed, crashed): drop its live gauges from /metrics."""
+    from prometheus_client import multiprocess
+
+    multiprocess.mark_process_dead(worker.pid)
+
+
+def on_exit(server: Any) -> None:
+    # Recognised by name and place rather than remembered in a variable: a reload (SIGHUP)
+    # runs this file again and would forget. A directory given by the operator stays.
+    path = Path(os.environ.get("PROMETHEUS_MULTIPROC_DIR", ""))
+    if path.name.startswith(_OWN_DIR_PREFIX) and path.parent == Path(tempfile.gettempdir()):
+        shutil.rmtree(path, ignore_errors=True)

@@ -9,15 +9,20 @@ from typing import Any
 from flask import Flask
 from werkzeug.exceptions import HTTPException
 
+from service import observe
 from service.api import bp, json_response
 from service.errors import PROBLEM_CONTENT_TYPE, ServiceError, problem_document
+from service.report_api import report_bp
 from service.settings import load_settings
 
 log = logging.getLogger(__name__)
 
 
 def create_app(config: Mapping[str, Any] | None = None) -> Flask:
-    """Build the app; ``config`` overrides settings (``MAX_ARCS``...) and Flask options."""
+    """Build the app; ``config`` overrides settings (``MAX_ARCS``...) and Flask options.
+
+    Raises ValueError naming the setting when one is invalid (see service.settings).
+    """
     app = Flask(__name__)
     settings = load_settings(config)
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
@@ -25,6 +30,9 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         app.config.update({k: v for k, v in config.items() if k.isupper()})
     app.extensions["certimatch.settings"] = settings
     app.register_blueprint(bp)
+    app.register_blueprint(report_bp)
+    # Request ids, the request log line and metrics wrap every view, errors included.
+    observe.init_app(app, settings.metrics_enabled)
 
     @app.errorhandler(ServiceError)
     def _service_error(e: ServiceError) -> Any:

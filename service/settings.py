@@ -1,58 +1,210 @@
-"""The service's settings: one table of name, default and meaning.
+"""The service's settings: one table of name, default, meaning and parser.
 
-Each setting can be given as ``CERTIMATCH_<NAME>`` in the environment or as ``<NAME>`` in
-the mapping passed to :func:`service.app.create_app`; the mapping wins.
+Every setting is an environment variable ``CERTIMATCH_<NAME>``. Settings of scope ``app``
+are read by :func:`service.app.create_app`, which also takes them as ``<NAME>`` keys of
+its mapping (the mapping wins); settings of scope ``server`` are read by
+``deploy/gunicorn.conf.py`` before any worker starts. Both refuse a bad value with a
+``ValueError`` that names the variable and the values it allows, so a typo stops the
+process at start-up instead of changing its behaviour quietly.
 """
 
 from __future__ import annotations
 
 import os
-from collections.abc import Mapping
+import re
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, fields
-from typing import Any
+from typing import Any, Literal
 
 ENV_PREFIX = "CERTIMATCH_"
+
+LOG_LEVELS = ("debug", "info", "warning", "error")
+
+
+class _Refused(ValueError):
+    """Raised by a parser; the loader puts the variable's name and the raw value around it."""
+
+
+def _whole(raw: Any) -> int:
+    try:
+        value = int(raw)
+    except (TypeError, ValueError):
+        raise _Refused("must be a whole number") from None
+    if isinstance(raw, float) and not raw.is_integer():
+        raise _Refused("must be a whole number")
+    if isinstance(raw, bool) or value < 1:
+        raise _Refused("must be a whole number of at least 1")
+    return value
+
+
+def _whole_or_auto(raw: Any) -> int | None:
+    # "auto" is spelled out so that a deployment can say "one per core" explicitly.
+    if isinstance(raw, str) and raw.strip().lower() == "auto":
+        return None
+    try:
+        return _whole(raw)
+    except _Refused:
+        raise _Refused("must be a whole number of at least 1 or auto") from None
+
+
+def _flag(raw: Any) -> bool:
+    # Only the two words: "yes", "1" or "on" would each be a second spelling to document,
+    # and a misspelt "flase" must not silently count as either.
+    if isinstance(raw, bool):
+        return raw
+    if isinstance(raw, str) and raw.strip().lower() in ("true", "false"):
+        return raw.strip().lower() == "true"
+    raise _Refused("must be true or false")
+
+
+def _log_level(raw: Any) -> str:
+    if isinstance(raw, str) and raw.strip().lower() in LOG_LEVELS:
+        return raw.strip().lower()
+    raise _Refused(f"must be one of {', '.join(LOG_LEVELS)}")
+
+
+_BIND = re.compile(r"(?:\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9.-]+):(\d{1,5})")
+
+
+def _bind(raw: Any) -> str:
+    allowed = "must be HOST:PORT, [IPv6]:PORT (PORT from 1 to 65535) or unix:PATH"
+    if not isinstance(raw, str):
+        raise _Refused(allowed)
+    text = raw.strip()
+    if text.startswith("unix:") and len(text) > len("unix:"):
+        return text
+    match = _BIND.fullmatch(text)
+    if match is None or not 1 <= int(match.group(1)) <= 65535:
+        raise _Refused(allowed)
+    return text
+
+
+def bind_port(bind: str) -> int | None:
+    """The TCP port of a ``BIND`` value, or None for a unix socket."""
+    match = _BIND.fullmatch(bind.strip())
+    return int(match.group(1)) if match else None
+
+
+Scope = Literal["app", "server"]
+
+
+@dataclass(frozen=True)
+class Setting:
+    """One row of the table: ``CERTIMATCH_<name>``, its default, meaning and parser."""
+
+    name: str
+    default: Any
+    help: str
+    parse: Callable[[Any], Any]
+    scope: Scope = "app"
+
+    @property
+    def env(self) -> str:
+        return ENV_PREFIX + self.name
+
+    @property
+    def shown_default(self) -> str:
+        """The default as the README's settings table writes it."""
+        if self.default is None:
+            return "auto"
+        if isinstance(self.default, bool):
+            return "true" if self.default else "false"
+        return str(self.default)
+
+
+#: Every setting of the service; the README's settings table lists exactly these.
+SETTINGS: tuple[Setting, ...] = (
+    Setting("MAX_BODY_BYTES", 64 * 1024 * 1024,
+            "largest request body in bytes; larger bodies get 413 before parsing", _whole),
+    Setting("MAX_CELLS", 16_000_000,
+            "largest cost matrix (rows x columns, null cells included)", _whole),
+    Setting("MAX_ARCS", 2_000_000, "largest number of arcs in an arc list", _whole),
+    Setting("MAX_NODES", 1_000_000, "largest number of sources + sinks + nodes", _whole),
+    Setting("MAX_ID_LENGTH", 200, "longest id, in characters", _whole),
+    Setting("METRICS_ENABLED", True,
+            "serve GET /metrics (Prometheus text format) and count requests and solves: "
+            "true or false", _flag),
+    Setting("BIND", "127.0.0.1:8080",
+            "address gunicorn listens on: HOST:PORT, [IPv6]:PORT or unix:PATH", _bind,
+            "server"),
+    Setting("WORKERS", None,
+            "gunicorn worker processes; auto = one per CPU core the process may use "
+            "(affinity and cgroup CPU limit)", _whole_or_auto, "server"),
+    Setting("WORKER_TIMEOUT", 120,
+            "seconds one request may take before gunicorn restarts its worker", _whole,
+            "server"),
+    Setting("GRACEFUL_TIMEOUT", 30,
+            "seconds requests in flight may finish after SIGTERM before workers are killed",
+            _whole, "server"),
+    Setting("ACCESS_LOG", False,
+            "also write gunicorn's access log (JSON lines); the app already logs one line "
+            "per request: true or false", _flag, "server"),
+    Setting("LOG_LEVEL", "info",
+            "least severe log level written: debug, info, warning or error", _log_level,
+            "server"),
+)
+
+_BY_NAME = {s.name: s for s in SETTINGS}
+HELP = {s.name.lower(): s.help for s in SETTINGS}
+
+
+def _default(name: str) -> Any:
+    return _BY_NAME[name].default
 
 
 @dataclass(frozen=True)
 class Settings:
-    """Limits that keep one request from eating the machine (see README, Settings)."""
+    """What ``create_app`` reads: limits that keep one request from eating the machine,
+    and whether metrics are served."""
 
-    max_body_bytes: int = 64 * 1024 * 1024
-    max_cells: int = 16_000_000
-    max_arcs: int = 2_000_000
-    max_nodes: int = 1_000_000
-    max_id_length: int = 200
+    max_body_bytes: int = _default("MAX_BODY_BYTES")
+    max_cells: int = _default("MAX_CELLS")
+    max_arcs: int = _default("MAX_ARCS")
+    max_nodes: int = _default("MAX_NODES")
+    max_id_length: int = _default("MAX_ID_LENGTH")
+    metrics_enabled: bool = _default("METRICS_ENABLED")
 
 
-HELP = {
-    "max_body_bytes": "largest request body in bytes; larger bodies get 413 before parsing",
-    "max_cells": "largest cost matrix (rows x columns, null cells included)",
-    "max_arcs": "largest number of arcs in an arc list",
-    "max_nodes": "largest number of sources + sinks + nodes",
-    "max_id_length": "longest id, in characters",
-}
+@dataclass(frozen=True)
+class ServerSettings:
+    """What ``deploy/gunicorn.conf.py`` reads; the environment only (it has no mapping)."""
+
+    bind: str = _default("BIND")
+    workers: int | None = _default("WORKERS")
+    worker_timeout: int = _default("WORKER_TIMEOUT")
+    graceful_timeout: int = _default("GRACEFUL_TIMEOUT")
+    access_log: bool = _default("ACCESS_LOG")
+    log_level: str = _default("LOG_LEVEL")
+
+
+def _read(cls: type[Any], overrides: Mapping[str, Any],
+          environ: Mapping[str, str]) -> dict[str, Any]:
+    values: dict[str, Any] = {}
+    for f in fields(cls):
+        setting = _BY_NAME[f.name.upper()]
+        if setting.name in overrides:
+            raw, source = overrides[setting.name], setting.name
+        elif setting.env in environ:
+            raw, source = environ[setting.env], setting.env
+        else:
+            continue
+        if raw is None:
+            continue
+        try:
+            values[f.name] = setting.parse(raw)
+        except _Refused as e:
+            raise ValueError(f"{source} {e}, got {raw!r}") from None
+    return values
 
 
 def load_settings(overrides: Mapping[str, Any] | None = None,
                   environ: Mapping[str, str] | None = None) -> Settings:
-    """Read the settings from the environment and ``overrides``; raise ValueError on a bad one."""
+    """Read the app settings from the environment and ``overrides``; ValueError on a bad one."""
     environ = os.environ if environ is None else environ
-    overrides = overrides or {}
-    values: dict[str, int] = {}
-    for f in fields(Settings):
-        key = f.name.upper()
-        raw: Any = overrides.get(key, environ.get(ENV_PREFIX + key))
-        if raw is None:
-            continue
-        source = key if key in overrides else ENV_PREFIX + key
-        try:
-            value = int(raw)
-        except (TypeError, ValueError):
-            raise ValueError(f"{source} must be a whole number, got {raw!r}") from None
-        if isinstance(raw, float) and not raw.is_integer():
-            raise ValueError(f"{source} must be a whole number, got {raw!r}")
-        if isinstance(raw, bool) or value < 1:
-            raise ValueError(f"{source} must be a whole number of at least 1, got {raw!r}")
-        values[f.name] = value
-    return Settings(**values)
+    return Settings(**_read(Settings, overrides or {}, environ))
+
+
+def load_server_settings(environ: Mapping[str, str] | None = None) -> ServerSettings:
+    """Read the server settings from the environment; ValueError on a bad one."""
+    environ = os.environ if environ is None else environ
+    return ServerSettings(**_read(ServerSettings, {}, environ))

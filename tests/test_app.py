@@ -1,23 +1,42 @@
-"""The application factory and the two probes a load balancer or orchestrator polls."""
+"""The application factory, its settings, the two probes a load balancer or orchestrator
+polls, and what the service says about itself (its OpenAPI document and the page at /)."""
 
 from __future__ import annotations
 
+import html
+import json
+import re
+import shlex
+import shutil
+import subprocess
+import sys
+import tomllib
 from dataclasses import fields
+from pathlib import Path
 
 import pytest
 
 from service import api
 from service.app import create_app
-from service.settings import ENV_PREFIX, Settings
+from service.settings import (
+    ENV_PREFIX,
+    SETTINGS,
+    ServerSettings,
+    Settings,
+    load_server_settings,
+)
 
-SETTING_NAMES = [f.name.upper() for f in fields(Settings)]
+ROOT = Path(__file__).resolve().parents[1]
+
+#: The limits: whole-number settings of the app (the other settings have other parsers).
+SETTING_NAMES = [f.name.upper() for f in fields(Settings) if f.type == "int"]
 
 
 @pytest.fixture(autouse=True)
 def clean_env(monkeypatch: pytest.MonkeyPatch) -> None:
     # The factory reads the process environment; tests set exactly what they need.
-    for name in SETTING_NAMES:
-        monkeypatch.delenv(ENV_PREFIX + name, raising=False)
+    for setting in SETTINGS:
+        monkeypatch.delenv(setting.env, raising=False)
 
 
 def settings_of(app) -> Settings:
@@ -128,3 +147,167 @@ def test_probes_refuse_post_with_a_problem_document(client, path):
     assert resp.status_code == 405
     assert resp.mimetype == "application/problem+json"
     assert "GET" in resp.headers["Allow"]
+
+
+# --- the settings table ---------------------------------------------------------------------
+
+
+def test_the_table_is_the_settings_classes():
+    app_names = {f.name.upper() for f in fields(Settings)}
+    server_names = {f.name.upper() for f in fields(ServerSettings)}
+    assert {s.name for s in SETTINGS if s.scope == "app"} == app_names
+    assert {s.name for s in SETTINGS if s.scope == "server"} == server_names
+    assert len({s.name for s in SETTINGS}) == len(SETTINGS)
+    for s in SETTINGS:
+        cls = Settings if s.scope == "app" else ServerSettings
+        assert getattr(cls(), s.name.lower()) == s.default, s.name
+        assert s.env == ENV_PREFIX + s.name
+        assert s.help and s.help[0].islower(), f"{s.name}: help is a lower-case phrase"
+
+
+def test_limits_are_all_whole_number_settings():
+    # Guards the parametrisation above: it must not silently lose the limits.
+    assert SETTING_NAMES == ["MAX_BODY_BYTES", "MAX_CELLS", "MAX_ARCS", "MAX_NODES",
+                             "MAX_ID_LENGTH"]
+
+
+@pytest.mark.parametrize(("raw", "expected"), [("true", True), ("FALSE", False),
+                                               (" false ", False), (False, False)])
+def test_metrics_switch_spellings(raw, expected):
+    assert settings_of(create_app({"METRICS_ENABLED": raw})).metrics_enabled is expected
+
+
+def test_server_settings_are_not_read_by_the_app(monkeypatch):
+    # A gunicorn-only value is gunicorn's to check; the app (and certimatch solve --local)
+    # must start whatever it says.
+    monkeypatch.setenv("CERTIMATCH_WORKERS", "many")
+    create_app()
+    with pytest.raises(ValueError, match="CERTIMATCH_WORKERS must be a whole number"):
+        load_server_settings()
+
+
+def _readme_settings() -> dict[str, str]:
+    """NAME -> default cell of the README's settings table."""
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = text.split("\n## Settings", 1)[1].split("\n## ", 1)[0]
+    rows = re.findall(r"^\|\s*`([A-Z_]+)`\s*\|\s*([^|]*?)\s*\|", section, re.MULTILINE)
+    return {name: default.strip("`") for name, default in rows}
+
+
+def test_every_setting_is_in_the_readme_table_with_its_default():
+    documented = _readme_settings()
+    missing = [s.name for s in SETTINGS if s.name not in documented]
+    assert not missing, f"README settings table lacks {missing}"
+    wrong = {s.name: (documented[s.name], s.shown_default) for s in SETTINGS
+             if documented[s.name] != s.shown_default}
+    assert not wrong, f"README default differs (README, code): {wrong}"
+    assert set(documented) <= {s.name for s in SETTINGS}, "README lists an unknown setting"
+
+
+# --- GET /v1/openapi.yaml -------------------------------------------------------------------
+
+
+def test_openapi_document_is_served_byte_for_byte(client):
+    response = client.get("/v1/openapi.yaml")
+    assert response.status_code == 200
+    assert response.mimetype == "application/yaml"
+    assert response.data == (ROOT / "openapi.yaml").read_bytes()
+
+
+def test_a_checkout_reads_the_spec_at_the_top_of_the_repository():
+    # This is the editable install (`pip install -e .`) and a plain checkout: the file
+    # served is the one in the working tree, never a stale copy.
+    assert api.openapi_path() == ROOT / "openapi.yaml"
+
+
+def test_the_wheel_carries_the_spec_as_a_data_file():
+    config = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))
+    data_files = config["tool"]["setuptools"]["data-files"]
+    target = "/".join(api.SPEC_DATA_PATH[:-1])
+    assert data_files[target] == ["openapi.yaml"]
+
+
+def test_an_installed_copy_finds_the_spec_through_its_record(tmp_path):
+    # What pip makes of the wheel: the packages in site-packages, the spec under
+    # <prefix>/share/certimatch, and a RECORD naming it relative to site-packages. Run in a
+    # child interpreter whose `service` is that copy, away from the checkout.
+    prefix = tmp_path / "prefix"
+    site = prefix / "lib" / "site-packages"
+    for package in ("service", "schemas"):
+        shutil.copytree(ROOT / package, site / package,
+                        ignore=shutil.ignore_patterns("__pycache__"))
+    data = prefix.joinpath(*api.SPEC_DATA_PATH)
+    data.parent.mkdir(parents=True)
+    shutil.copyfile(ROOT / "openapi.yaml", data)
+    info = site / "certimatch-0.1.0.dist-info"
+    info.mkdir()
+    (info / "METADATA").write_text("Metadata-Version: 2.1\nName: certimatch\nVersion: 0.1.0\n")
+    (info / "RECORD").write_text("../../share/certimatch/openapi.yaml,,\n"
+                                 "service/api.py,,\ncertimatch-0.1.0.dist-info/RECORD,,\n")
+    code = ("import json, service.api as a\n"
+            "from service.app import create_app\n"
+            "r = create_app({'TESTING': True}).test_client().get('/v1/openapi.yaml')\n"
+            "print(json.dumps([a.__file__, str(a.openapi_path()), r.status_code,"
+            " len(r.data)]))\n")
+    env = {"PYTHONPATH": str(site), "PATH": "/usr/bin:/bin"}
+    done = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, env=env,
+                          capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    module, found, status, size = json.loads(done.stdout)
+    assert Path(module).is_relative_to(site), "the child imported the checkout, not the copy"
+    assert Path(found) == data.resolve()
+    assert (status, size) == (200, data.stat().st_size)
+
+
+def test_a_missing_spec_is_a_500_problem(client, monkeypatch):
+    monkeypatch.setattr(api, "openapi_path", lambda: None)
+    response = client.get("/v1/openapi.yaml")
+    assert response.status_code == 500
+    assert response.get_json()["type"] == "urn:certimatch:problem:internal-error"
+
+
+# --- the page at / --------------------------------------------------------------------------
+
+
+def _block(page: str, block_id: str) -> str:
+    match = re.search(rf'<pre id="{block_id}"><code>(.*?)</code></pre>', page, re.DOTALL)
+    assert match, f"no {block_id} on the page"
+    return html.unescape(match.group(1))
+
+
+def test_home_page_is_plain_html_with_nothing_from_elsewhere(client):
+    response = client.get("/")
+    assert response.status_code == 200
+    assert response.mimetype == "text/html"
+    page = response.get_data(as_text=True)
+    assert '<a href="/v1/openapi.yaml">' in page
+    assert "<script" not in page.lower() and "src=" not in page.lower()
+    assert not re.search(r"@import|url\(", page), "the style loads something"
+    # Every link stays on this server.
+    assert all(href.startswith("/") for href in re.findall(r'href="([^"]*)"', page))
+    assert "default-src 'none'" in response.headers["Content-Security-Policy"]
+    for href in re.findall(r'href="([^"]*)"', page):
+        assert client.get(href).status_code == 200, href
+
+
+def test_home_page_command_gets_the_answer_it_shows(client):
+    page = client.get("/", base_url="http://solver.internal:8080").get_data(as_text=True)
+    words = shlex.split(_block(page, "solve-command"))
+    assert words[:3] == ["curl", "-s", "http://solver.internal:8080/v1/solve"]
+    assert words[words.index("-H") + 1] == "Content-Type: application/json"
+    body = words[words.index("-d") + 1]
+    assert json.loads(body) == api.EXAMPLE
+    # Run the command's request against the app: the page shows exactly that answer.
+    answer = client.post("/v1/solve", data=body, content_type="application/json").get_json()
+    assert json.loads(_block(page, "solve-answer")) == answer
+    # The README explains the certificate of this same example with its total of 95.
+    assert answer["objective"] == 95
+    assert "<b>95</b>" in page
+
+
+def test_home_page_never_echoes_markup_from_the_host_header(client):
+    # The command shows the URL the caller used, so the Host header reaches the page;
+    # markup in it must not (werkzeug drops an invalid host, and the page escapes the rest).
+    response = client.get("/", headers={"Host": "x<i>'y"})
+    assert response.status_code == 200
+    assert "<i>" not in response.get_data(as_text=True)

@@ -33,6 +33,7 @@ from referencing.jsonschema import DRAFT202012
 import schemas
 import service.api
 import service.errors
+import service.observe
 import service.pipeline
 from schemas.answer import SHAPES, SOLVERS
 from schemas.problem import OBJECTIVES, UNMET_POLICIES
@@ -674,3 +675,56 @@ def test_not_ready_answer_matches_the_spec(client: Any,
     assert response.mimetype == "application/problem+json"
     _check(response.get_json(), _pointer("paths", "/readyz", "get", "responses", "503",
                                          "content", "application/problem+json", "schema"))
+
+
+# -- request ids and the documents the service serves about itself ---------------------
+
+
+def _responses_of_every_operation() -> Iterator[tuple[str, dict[str, Any]]]:
+    for path, method, op in _operations():
+        for status, response in op["responses"].items():
+            if "$ref" in response:
+                response = _resolve(response["$ref"][1:])
+            yield f"{method} {path} {status}", response
+
+
+def test_every_operation_accepts_a_request_id() -> None:
+    for path, method, op in _operations():
+        refs = [p.get("$ref") for p in op.get("parameters", [])]
+        assert "#/components/parameters/RequestId" in refs, f"{method} {path}"
+    parameter = SPEC["components"]["parameters"]["RequestId"]
+    assert (parameter["name"], parameter["in"]) == (service.observe.REQUEST_ID_HEADER, "header")
+    assert parameter["schema"]["maxLength"] == service.observe.REQUEST_ID_MAX
+
+
+def test_every_response_documents_the_request_id_header() -> None:
+    for label, response in _responses_of_every_operation():
+        header = response.get("headers", {}).get(service.observe.REQUEST_ID_HEADER, {})
+        assert header.get("$ref") == "#/components/headers/RequestId", label
+
+
+@pytest.mark.parametrize(("path", "status"), [("/healthz", 200), ("/readyz", 200),
+                                              ("/v1/openapi.yaml", 200), ("/", 200),
+                                              ("/metrics", 200), ("/v2/solve", 404)])
+def test_get_answers_match_their_documented_media_type(client: Any, path: str,
+                                                       status: int) -> None:
+    response = client.get(path)
+    assert response.status_code == status
+    item = SPEC["paths"].get(path)
+    responses = item["get"]["responses"] if item else {"404": {
+        "$ref": "#/components/responses/NotFound"}}
+    documented = responses[str(status)]
+    if "$ref" in documented:
+        documented = _resolve(documented["$ref"][1:])
+    assert response.mimetype in documented["content"]
+    header = response.headers[service.observe.REQUEST_ID_HEADER]
+    _check(header, "/components/headers/RequestId/schema")
+
+
+def test_metrics_description_names_every_metric() -> None:
+    # The names operators put in dashboards and alerts are part of the contract.
+    text = SPEC["paths"]["/metrics"]["get"]["description"]
+    for metric in vars(service.observe.metrics()).values():
+        family = metric.describe()[0]
+        name = family.name + ("_total" if family.type == "counter" else "")
+        assert f"`{name}`" in text, name
