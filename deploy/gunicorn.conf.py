@@ -18,6 +18,7 @@ from __future__ import annotations
 import math
 import os
 import shutil
+import sys
 import tempfile
 from pathlib import Path
 from typing import Any
@@ -143,7 +144,18 @@ _METRIC_FILES = ("counter_*.db", "gauge_*.db", "histogram_*.db", "summary_*.db")
 
 
 def on_starting(server: Any) -> None:
-    """In the master, before any worker: the metrics directory and the JSON log handler."""
+    """In the master, before any worker: the exposure check, metrics directory, logging."""
+    # Checked here, not at import: server.cfg.bind includes a --bind given on the command
+    # line, which overrides CERTIMATCH_BIND.
+    from service.auth import check_exposure, load_tokens
+
+    try:
+        warning = check_exposure(server.cfg.bind, load_tokens(load_settings()),
+                                 _server.insecure)
+    except ValueError as e:
+        raise SystemExit(f"certimatch: {e}") from None
+    if warning:
+        print(f"certimatch: warning: {warning}", file=sys.stderr, flush=True)
     path = os.environ.get("PROMETHEUS_MULTIPROC_DIR")
     if path:
         # A directory given by the operator may hold the files of a previous run, whose

@@ -5,7 +5,14 @@ from __future__ import annotations
 from marshmallow import Schema, fields, validate
 
 from schemas.problem import ProblemSchema
-from schemas.tables import MAX_ANSWER_VALUE, IdList, Number, NumberMap, RecordList
+from schemas.tables import (
+    MAX_ANSWER_VALUE,
+    IdList,
+    Number,
+    NumberMap,
+    RecordList,
+    StrictBoolean,
+)
 
 SHAPES = ("assignment", "transportation", "transshipment")
 SOLVERS = ("linear_sum_assignment", "min_weight_full_bipartite_matching", "min_cost_flow")
@@ -48,7 +55,7 @@ class CutSchema(Schema):
 class CertificateSchema(Schema):
     """Dual potentials and the cut; see README, 'The certificate'."""
 
-    negated = fields.Boolean(required=True)
+    negated = StrictBoolean(required=True)
     potentials = NumberMap(required=True)
     virtual_potentials = fields.Nested(VirtualPotentialsSchema, required=True)
     hard_shortfall = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)

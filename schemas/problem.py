@@ -6,10 +6,12 @@ from typing import Any
 
 from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
 
-from schemas.tables import CostMatrix, RecordList
+from schemas.tables import CostMatrix, Number, RecordList
 
 OBJECTIVES = ("min", "max")
 UNMET_POLICIES = ("minimize", "reject")
+#: Largest time_limit_s a request may name (one day); the server caps it lower.
+MAX_TIME_LIMIT = 86_400
 
 
 class SourceSchema(Schema):
@@ -57,6 +59,9 @@ class ProblemSchema(Schema):
     objective = fields.String(load_default="min", validate=validate.OneOf(OBJECTIVES))
     unmet_demand = fields.String(load_default="minimize",
                                  validate=validate.OneOf(UNMET_POLICIES))
+    time_limit_s = Number(bound=MAX_TIME_LIMIT, validate=validate.Range(
+        min=0, min_inclusive=False, error="must be more than 0 seconds"),
+        metadata={"description": "seconds this request may compute, capped by the server"})
 
     @validates_schema(pass_original=True, skip_on_field_errors=False)
     def _one_cost_form(self, data: dict[str, Any], original: Any, **kwargs: Any) -> None:

@@ -45,13 +45,11 @@ def _bad_number(v: Any, kind: str, bound: int = MAX_ABS_VALUE) -> bool:
     """True when one value breaks its domain (error path only)."""
     if type(v) not in _NUMBER_TYPES:
         return True
-    try:
-        x = float(v)
-    except OverflowError:
+    if type(v) is int:
+        return abs(v) > bound or (kind == "count" and v < 0)   # exact, beyond 2**53 too
+    if not np.isfinite(v) or abs(v) > bound:
         return True
-    if not np.isfinite(x) or abs(x) > bound:
-        return True
-    return kind == "count" and (x < 0 or x != int(x))
+    return kind == "count" and (v < 0 or v != int(v))
 
 
 def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
@@ -79,6 +77,9 @@ def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
     present = ~np.isnan(arr) if nullable else np.ones(n, bool)
     vals = np.where(present, arr, 0.0)
     ok = np.isfinite(vals) & (np.abs(vals) <= bound)
+    # a whole number just past a bound of 2**53 rounds onto it as a double: decide exactly
+    for i in np.flatnonzero(np.abs(vals) == bound).tolist():
+        ok[i] = not _bad_number(values[i], kind, bound)
     if kind == "count":
         ok &= (vals >= 0) & (vals == np.floor(vals))
     if minimum is not None:
@@ -315,3 +316,12 @@ def to_pointers(messages: Any, prefix: str = "") -> list[dict[str, str]]:
 def iter_wire_keys(schema: Schema) -> Iterable[str]:
     """The JSON keys a schema reads, for documentation checks."""
     return [f.data_key or name for name, f in schema.fields.items()]
+
+
+class StrictBoolean(fields.Field):
+    """A JSON true or false, nothing else (marshmallow's Boolean also takes "yes", 1...)."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> bool:
+        if type(value) is not bool:
+            raise ValidationError("must be true or false")
+        return value

@@ -17,6 +17,7 @@ from typing import Any
 
 import orjson
 from flask import Blueprint, Response, current_app, request
+from werkzeug.exceptions import RequestEntityTooLarge
 
 from service import observe
 from service.errors import (
@@ -59,11 +60,26 @@ def _json_body() -> Any:
             mimetype.startswith("application/") and mimetype.endswith("+json")):
         got = request.content_type or "no content type"
         raise UnsupportedMediaType(f"send the body as application/json, not {got}")
-    raw = request.get_data(cache=False)   # 413 here when over MAX_CONTENT_LENGTH
+    raw = _read_body()
     try:
         return orjson.loads(raw)
     except orjson.JSONDecodeError as e:
         raise MalformedBody(f"the body is not valid JSON: {e}") from None
+
+
+def _read_body() -> bytes:
+    """The whole body, or 413 when it is over MAX_BODY_BYTES.
+
+    Werkzeug answers 413 itself when Content-Length says too much; a chunked body has no
+    length, and its stream merely stops at the limit, so read one byte past it to know.
+    """
+    limit = _settings().max_body_bytes
+    if request.content_length is not None:
+        return request.get_data(cache=False)   # 413 here when over the limit
+    raw = request.stream.read(limit + 1)
+    if len(raw) > limit:
+        raise RequestEntityTooLarge()
+    return raw
 
 
 def json_response(doc: Any, status: int = 200,

@@ -9,7 +9,7 @@ from typing import Any
 from flask import Flask
 from werkzeug.exceptions import HTTPException
 
-from service import observe
+from service import auth, observe
 from service.api import bp, json_response
 from service.errors import PROBLEM_CONTENT_TYPE, ServiceError, problem_document
 from service.report_api import report_bp
@@ -29,6 +29,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     if config:
         app.config.update({k: v for k, v in config.items() if k.isupper()})
     app.extensions["certimatch.settings"] = settings
+    auth.init_app(app, settings)
     app.register_blueprint(bp)
     app.register_blueprint(report_bp)
     # Request ids, the request log line and metrics wrap every view, errors included.
@@ -36,9 +37,11 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     @app.errorhandler(ServiceError)
     def _service_error(e: ServiceError) -> Any:
-        if e.status >= 500:
+        if e.status >= 500 and e.status != 503:
             log.error("%s: %s", e.title, e.detail)
-        return json_response(e.problem(), e.status, PROBLEM_CONTENT_TYPE)
+        response = json_response(e.problem(), e.status, PROBLEM_CONTENT_TYPE)
+        response.headers.update(e.headers)
+        return response
 
     @app.errorhandler(HTTPException)
     def _http_error(e: HTTPException) -> Any:

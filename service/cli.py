@@ -30,6 +30,8 @@ from typing import Any
 import requests
 
 from service import __version__
+from service.auth import check_exposure, load_tokens
+from service.settings import load_settings
 
 EXIT_OK = 0
 EXIT_ERROR = 1
@@ -523,11 +525,23 @@ def _child_env() -> dict[str, str]:
 
 def _cmd_serve(args: argparse.Namespace) -> int:
     argv = _gunicorn_argv(args.host, args.port, args.workers)
+    env = _child_env()
+    if args.insecure:
+        env["CERTIMATCH_INSECURE"] = "true"
+    if args.host is not None:
+        # the config file's hook checks this too; without a config file only we can
+        try:
+            warning = check_exposure([args.host], load_tokens(load_settings()),
+                                     env.get("CERTIMATCH_INSECURE", "").lower() == "true")
+        except ValueError as e:
+            raise CliError(str(e)) from None
+        if warning and _gunicorn_config() is None:
+            print(f"certimatch: warning: {warning}", file=sys.stderr)
     sys.stdout.flush()
     sys.stderr.flush()
     # exec, not a child: gunicorn becomes this process, so a supervisor's signals reach
     # its master directly and there is no second process to forward them.
-    os.execve(argv[0], argv, _child_env())
+    os.execve(argv[0], argv, env)
     return EXIT_ERROR  # not reached: execve either replaces the process or raises
 
 
@@ -881,6 +895,9 @@ def _parser() -> argparse.ArgumentParser:
                        help=f"port to bind (default: the config file's, else {DEFAULT_PORT})")
     serve.add_argument("--workers", type=_positive, default=None,
                        help="worker processes (default: the config file's, else 2)")
+    serve.add_argument("--insecure", action="store_true",
+                       help="allow a non-loopback address with no bearer tokens "
+                       "(CERTIMATCH_TOKENS); anyone who reaches it can use the service")
     serve.set_defaults(handler=_cmd_serve)
 
     solve = sub.add_parser(

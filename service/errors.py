@@ -32,10 +32,12 @@ class ServiceError(Exception):
     slug = "internal-error"
     title = "Internal error"
 
-    def __init__(self, detail: str, **extra: Any) -> None:
+    def __init__(self, detail: str, *, headers: dict[str, str] | None = None,
+                 **extra: Any) -> None:
         super().__init__(detail)
         self.detail = detail
         self.extra = extra
+        self.headers = headers or {}
 
     def problem(self) -> dict[str, Any]:
         return problem_document(self.status, self.title, self.detail, self.slug, **self.extra)
@@ -109,3 +111,19 @@ class CertificateFailure(ServiceError):
     status = 500
     slug = "certificate-failure"
     title = "Answer failed its optimality check"
+
+
+class Unauthorized(ServiceError):
+    """No bearer token, or one the service does not know (RFC 6750)."""
+
+    status = 401
+    slug = "unauthorized"
+    title = "Bearer token required"
+
+
+class TimeLimitExceeded(ServiceError):
+    """The request computed longer than its time limit; nothing of it is answered."""
+
+    status = 503
+    slug = "time-limit"
+    title = "Time limit reached"

@@ -17,6 +17,7 @@ from schemas import AnswerSchema, ProblemSchema, VerifyRequestSchema, to_pointer
 from service import dispatch
 from service.answer import build_answer
 from service.certificate import certify
+from service.deadline import deadline
 from service.errors import CertificateFailure, InvalidProblem
 from service.network import Network, build_network
 from service.settings import Settings
@@ -43,13 +44,26 @@ def solve_body(body: Any, settings: Settings,
     ``timings``, when given, receives the seconds spent in each phase (for the benchmark).
     """
     clock = _Clock(timings)
-    data = clock.run("validate", _load, _problem_schema, body)
-    net = clock.run("normalise", build_network, data, settings)
-    solution = clock.run("solve", dispatch.solve, net)
-    cert = clock.run("certify", certify, net, solution)
-    answer = clock.run("answer", build_answer, net, solution, cert)
-    clock.run("self_verify", self_check, net, answer)
+    with deadline(time_limit(body, settings), "solving this problem"):
+        data = clock.run("validate", _load, _problem_schema, body)
+        net = clock.run("normalise", build_network, data, settings)
+        solution = clock.run("solve", dispatch.solve, net)
+        cert = clock.run("certify", certify, net, solution)
+        answer = clock.run("answer", build_answer, net, solution, cert)
+        clock.run("self_verify", self_check, net, answer)
     return answer
+
+
+def time_limit(body: Any, settings: Settings) -> float:
+    """The request's ``time_limit_s`` when it is a sensible number, capped by the server.
+
+    An invalid value is reported by the schema; until then the server's cap applies.
+    """
+    asked: Any = body.get("time_limit_s") if isinstance(body, dict) else None
+    cap = float(settings.max_time_limit_s)
+    if isinstance(asked, int | float) and not isinstance(asked, bool) and 0 < asked < cap:
+        return float(asked)
+    return cap
 
 
 class _Clock:
@@ -86,6 +100,7 @@ def self_check(net: Network, answer: dict[str, Any]) -> None:
 
 def verify_body(body: Any, settings: Settings) -> dict[str, Any]:
     """``{"valid", "checks"}`` for a problem plus an answer."""
-    data = _load(_verify_schema, body)
-    answer = data.pop("answer")
-    return verify_answer(build_network(data, settings), answer)
+    with deadline(time_limit(body, settings), "checking this answer"):
+        data = _load(_verify_schema, body)
+        answer = data.pop("answer")
+        return verify_answer(build_network(data, settings), answer)

@@ -13,12 +13,17 @@ from __future__ import annotations
 import os
 import re
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, field, fields
 from typing import Any, Literal
 
 ENV_PREFIX = "CERTIMATCH_"
 
 LOG_LEVELS = ("debug", "info", "warning", "error")
+
+#: Shortest bearer token accepted from the environment.
+MIN_TOKEN_LENGTH = 16
+#: Largest time limit a server may allow a request (one day).
+MAX_SECONDS = 86_400
 
 
 class _Refused(ValueError):
@@ -63,6 +68,30 @@ def _log_level(raw: Any) -> str:
     raise _Refused(f"must be one of {', '.join(LOG_LEVELS)}")
 
 
+def _tokens(raw: Any) -> tuple[str, ...]:
+    # Short tokens are guessable; 16 characters is the least a generator would hand out.
+    if not isinstance(raw, str):
+        raise _Refused("must be a comma-separated list of tokens")
+    tokens = tuple(t.strip() for t in raw.split(",") if t.strip())
+    if any(len(t) < MIN_TOKEN_LENGTH or not t.isprintable() or " " in t for t in tokens):
+        raise _Refused(f"must hold printable tokens of at least {MIN_TOKEN_LENGTH} "
+                       "characters without spaces")
+    return tokens
+
+
+def _path(raw: Any) -> str:
+    if not isinstance(raw, str):
+        raise _Refused("must be a file path")
+    return raw.strip()
+
+
+def _seconds(raw: Any) -> int:
+    value = _whole(raw)
+    if value > MAX_SECONDS:
+        raise _Refused(f"must be a whole number from 1 to {MAX_SECONDS}")
+    return value
+
+
 _BIND = re.compile(r"(?:\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9.-]+):(\d{1,5})")
 
 
@@ -97,6 +126,7 @@ class Setting:
     help: str
     parse: Callable[[Any], Any]
     scope: Scope = "app"
+    secret: bool = False      # never repeat the value in a message
 
     @property
     def env(self) -> str:
@@ -107,6 +137,8 @@ class Setting:
         """The default as the README's settings table writes it."""
         if self.default is None:
             return "auto"
+        if self.default in ((), ""):
+            return "none"
         if isinstance(self.default, bool):
             return "true" if self.default else "false"
         return str(self.default)
@@ -124,6 +156,21 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("METRICS_ENABLED", True,
             "serve GET /metrics (Prometheus text format) and count requests and solves: "
             "true or false", _flag),
+    Setting("TOKENS", (),
+            "bearer tokens that may call the service, comma-separated; none: no "
+            "authentication (allowed on a loopback address only)", _tokens, secret=True),
+    Setting("TOKENS_FILE", "",
+            "file of bearer tokens, one per line, or their SHA-256 digests written "
+            "sha256:<64 hex digits>; # starts a comment", _path),
+    Setting("METRICS_PUBLIC", False,
+            "serve GET /metrics without a token when tokens are configured: true or false",
+            _flag),
+    Setting("MAX_TIME_LIMIT_S", 60,
+            "longest a request may compute, in seconds; a request may ask for less with "
+            "time_limit_s", _seconds),
+    Setting("INSECURE", False,
+            "gunicorn only: allow listening on a non-loopback address with no tokens "
+            "(a warning is logged): true or false", _flag, "server"),
     Setting("BIND", "127.0.0.1:8080",
             "address gunicorn listens on: HOST:PORT, [IPv6]:PORT or unix:PATH", _bind,
             "server"),
@@ -163,12 +210,17 @@ class Settings:
     max_nodes: int = _default("MAX_NODES")
     max_id_length: int = _default("MAX_ID_LENGTH")
     metrics_enabled: bool = _default("METRICS_ENABLED")
+    tokens: tuple[str, ...] = field(default=_default("TOKENS"), repr=False)
+    tokens_file: str = _default("TOKENS_FILE")
+    metrics_public: bool = _default("METRICS_PUBLIC")
+    max_time_limit_s: int = _default("MAX_TIME_LIMIT_S")
 
 
 @dataclass(frozen=True)
 class ServerSettings:
     """What ``deploy/gunicorn.conf.py`` reads; the environment only (it has no mapping)."""
 
+    insecure: bool = _default("INSECURE")
     bind: str = _default("BIND")
     workers: int | None = _default("WORKERS")
     worker_timeout: int = _default("WORKER_TIMEOUT")
@@ -193,7 +245,8 @@ def _read(cls: type[Any], overrides: Mapping[str, Any],
         try:
             values[f.name] = setting.parse(raw)
         except _Refused as e:
-            raise ValueError(f"{source} {e}, got {raw!r}") from None
+            shown = "a value not shown here" if setting.secret else repr(raw)
+            raise ValueError(f"{source} {e}, got {shown}") from None
     return values
 
 

@@ -163,12 +163,16 @@ def no_logging_setup(monkeypatch: pytest.MonkeyPatch) -> list[str]:
     return levels
 
 
+#: What on_starting reads of gunicorn's arbiter: the final bind list.
+LOOPBACK_SERVER = SimpleNamespace(cfg=SimpleNamespace(bind=["127.0.0.1:8080"]))
+
+
 def test_on_starting_empties_a_given_metrics_dir(monkeypatch, tmp_path, no_logging_setup):
     for name in ("counter_11.db", "histogram_11.db", "gauge_all_11.db", "notes.txt"):
         (tmp_path / name).write_text("x")
     conf = load_conf(monkeypatch, {"PROMETHEUS_MULTIPROC_DIR": str(tmp_path),
                                    "CERTIMATCH_LOG_LEVEL": "error"})
-    conf["on_starting"](None)
+    conf["on_starting"](LOOPBACK_SERVER)
     # Counts of a previous run must not be added to this run's; other files stay.
     assert sorted(p.name for p in tmp_path.iterdir()) == ["notes.txt"]
     assert no_logging_setup == ["error"]
@@ -179,7 +183,7 @@ def test_on_starting_empties_a_given_metrics_dir(monkeypatch, tmp_path, no_loggi
 def test_on_starting_creates_a_metrics_dir_and_on_exit_removes_it(monkeypatch,
                                                                  no_logging_setup):
     conf = load_conf(monkeypatch)
-    conf["on_starting"](None)
+    conf["on_starting"](LOOPBACK_SERVER)
     made = Path(os.environ["PROMETHEUS_MULTIPROC_DIR"])
     try:
         assert made.is_dir()

@@ -22,7 +22,7 @@ from typing import Any
 import pytest
 import yaml
 from jsonschema.exceptions import ValidationError
-from marshmallow import RAISE, Schema, missing
+from marshmallow import RAISE, Schema, missing, validate
 from openapi_schema_validator import OAS31Validator, oas31_format_checker
 from openapi_schema_validator import validate as validate_instance
 from openapi_spec_validator import validate as validate_spec
@@ -256,7 +256,7 @@ def test_defaults_are_the_load_defaults(cls_name: str) -> None:
             assert prop.get("default") == value, f"{cls_name}.{name}"
 
 
-def _number_checks() -> Iterator[tuple[str, dict[str, Any], str, int, int | None]]:
+def _number_checks() -> Iterator[tuple[str, dict[str, Any], str, int, int | str | None]]:
     """(where, spec property, kind, bound, minimum) for every number the schemas check."""
     for cls_name, cls in sorted(SCHEMA_CLASSES.items()):
         for name, f in cls().fields.items():
@@ -272,7 +272,10 @@ def _number_checks() -> Iterator[tuple[str, dict[str, Any], str, int, int | None
             where = f"{cls_name.removesuffix('Schema')}.{key}"
             prop = _deref(_properties(cls_name).get(key, {}))
             if isinstance(f, Number):
-                yield where, prop, f.kind, f.bound, None
+                # a Range(min=0, exclusive) validator is the spec's exclusiveMinimum: 0
+                positive = any(isinstance(v, validate.Range) and v.min == 0
+                               and not v.min_inclusive for v in f.validators)
+                yield where, prop, f.kind, f.bound, ("exclusive 0" if positive else None)
             elif isinstance(f, NumberMap):
                 yield f"{where}.*", prop.get("additionalProperties", {}), "number", \
                     MAX_ANSWER_VALUE, None
@@ -287,7 +290,7 @@ NUMBER_CHECKS = list({c[0]: c for c in _number_checks()}.values())
 @pytest.mark.parametrize(("where", "prop", "kind", "bound", "minimum"), NUMBER_CHECKS,
                          ids=[c[0] for c in NUMBER_CHECKS])
 def test_number_bounds_are_the_checked_bounds(where: str, prop: dict[str, Any], kind: str,
-                                              bound: int, minimum: int | None) -> None:
+                                              bound: int, minimum: int | str | None) -> None:
     types = prop.get("type", [])
     types = types if isinstance(types, list) else [types]
     if kind == "count":
@@ -295,6 +298,9 @@ def test_number_bounds_are_the_checked_bounds(where: str, prop: dict[str, Any], 
         assert (prop.get("minimum"), prop.get("maximum")) == (0, bound)
     else:
         assert "number" in types
+        if minimum == "exclusive 0":
+            assert (prop.get("exclusiveMinimum"), prop.get("maximum")) == (0, bound)
+            return
         low = -bound if minimum is None else minimum
         assert (prop.get("minimum"), prop.get("maximum")) == (low, bound)
 
