@@ -11,7 +11,9 @@ used by the OpenAPI document); :class:`RecordList` derives its columns from that
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
+from contextlib import contextmanager
+from contextvars import ContextVar
 from dataclasses import dataclass, field
 from itertools import chain, repeat
 from typing import Any
@@ -27,6 +29,25 @@ MAX_ABS_VALUE = 10**9
 MAX_ERRORS_PER_LIST = 50
 
 _NUMBER_TYPES = {int, float}
+
+#: Whether the body being loaded may hold JSON booleans (unknown: assume so). When it
+#: cannot, numpy's own type inference is a complete type check of a cost matrix: any
+#: string, null or nested list makes it leave the numeric kinds, and only a boolean could
+#: pass as a number unseen.
+_booleans_possible: ContextVar[bool] = ContextVar("booleans_possible", default=True)
+
+
+@contextmanager
+def body_source(raw: bytes | None) -> Iterator[None]:
+    """Within this block, loads come from ``raw`` (None: unknown)."""
+    if raw is None:
+        yield
+        return
+    token = _booleans_possible.set(b"true" in raw or b"false" in raw)
+    try:
+        yield
+    finally:
+        _booleans_possible.reset(token)
 
 
 #: Largest magnitude of a number in an answer (objective, potentials): exact in JSON.
@@ -225,6 +246,10 @@ class CostMatrix(fields.Field):
                     errors[i] = [f"has {w} entries, row 0 has {widths[0]}"]
             raise ValidationError(_cap(errors))
         width = widths[0] if rows else 0
+        if rows and not _booleans_possible.get():
+            fast = self._numeric(rows, width)
+            if fast is not None:
+                return fast
         types = set(map(type, chain.from_iterable(rows)))
         if types <= {int}:
             try:
@@ -244,6 +269,22 @@ class CostMatrix(fields.Field):
         out = vals.reshape(len(rows), width)
         out[~present.reshape(out.shape)] = np.nan
         return out
+
+
+    @staticmethod
+    def _numeric(rows: list, width: int) -> np.ndarray | None:
+        """The matrix by numpy's inference alone, when every cell is an in-range number."""
+        try:
+            arr = np.array(rows)
+        except (ValueError, OverflowError):
+            return None
+        if arr.shape != (len(rows), width) or arr.dtype.kind not in "if" or not arr.size:
+            return None                     # nulls, strings, huge integers: the full check
+        if arr.dtype.kind == "f" and not np.isfinite(arr).all():
+            return None
+        if float(np.abs(arr).max()) > MAX_ABS_VALUE:
+            return None
+        return arr.astype(np.int64, copy=False) if arr.dtype.kind == "i" else arr
 
 
 class Number(fields.Field):

@@ -28,7 +28,7 @@ from service.errors import (
     UnsupportedMediaType,
     problem_document,
 )
-from service.pipeline import solve_body, verify_body
+from service.pipeline import request_scope, solve_body, verify_body
 from service.settings import Settings
 
 bp = Blueprint("api", __name__)
@@ -55,6 +55,11 @@ def _settings() -> Settings:
 
 
 def _json_body() -> Any:
+    return _read_json()[0]
+
+
+def _read_json() -> tuple[Any, bytes]:
+    """The parsed body and its bytes."""
     mimetype = request.mimetype
     if mimetype != "application/json" and not (
             mimetype.startswith("application/") and mimetype.endswith("+json")):
@@ -62,7 +67,7 @@ def _json_body() -> Any:
         raise UnsupportedMediaType(f"send the body as application/json, not {got}")
     raw = _read_body()
     try:
-        return orjson.loads(raw)
+        return orjson.loads(raw), raw
     except orjson.JSONDecodeError as e:
         raise MalformedBody(f"the body is not valid JSON: {e}") from None
 
@@ -76,7 +81,8 @@ def _read_body() -> bytes:
     limit = _settings().max_body_bytes
     if request.content_length is not None:
         return request.get_data(cache=False)   # 413 here when over the limit
-    raw = request.stream.read(limit + 1)
+    # request.stream would stop quietly at the limit: read the server's own input stream
+    raw = request.environ["wsgi.input"].read(limit + 1)
     if len(raw) > limit:
         raise RequestEntityTooLarge()
     return raw
@@ -87,13 +93,13 @@ def json_response(doc: Any, status: int = 200,
     return Response(orjson.dumps(doc), status=status, content_type=content_type)
 
 
-def _solve_counted(body: Any, settings: Settings) -> dict[str, Any]:
+def _solve_counted(body: Any, settings: Settings, raw: bytes) -> dict[str, Any]:
     """``solve_body`` with its outcome counted for /metrics (shape and solver from the answer)."""
     if not settings.metrics_enabled:
-        return solve_body(body, settings)
+        return solve_body(body, settings, source=raw)
     started = time.perf_counter()
     try:
-        answer = solve_body(body, settings)
+        answer = solve_body(body, settings, source=raw)
     except CertificateFailure:
         observe.count_certificate_failure()
         raise
@@ -103,13 +109,17 @@ def _solve_counted(body: Any, settings: Settings) -> dict[str, Any]:
 
 @bp.post("/v1/solve")
 def solve() -> Response:
-    return json_response(_solve_counted(_json_body(), _settings()))
+    with request_scope():
+        body, raw = _read_json()
+        return json_response(_solve_counted(body, _settings(), raw))
 
 
 @bp.post("/v1/verify")
 def verify() -> Response:
     settings = _settings()
-    result = verify_body(_json_body(), settings)
+    with request_scope():
+        body, raw = _read_json()
+        result = verify_body(body, settings, source=raw)
     if settings.metrics_enabled:
         observe.count_verification(result.get("valid") is True)
     return json_response(result)

@@ -313,9 +313,11 @@ def _allocation(net: Network, rows: Any, index: dict[str, int], checks: _Checks
         arc[arc_given] = rows.columns["arc"][arc_given]
         exists = net.arc_exists(arc)
         wrong = _first(arc_given & ~exists)
-        if wrong is None:
-            t, h = net.endpoints(np.where(exists, arc, 0))
-            wrong = _first(arc_given & ((t != tails) | (h != heads)))
+        if wrong is None and arc_given.any():
+            given = np.flatnonzero(arc_given)
+            t, h = net.endpoints(arc[given])
+            mismatch = _first((t != tails[given]) | (h != heads[given]))
+            wrong = None if mismatch is None else int(given[mismatch])
         if wrong is not None:
             checks.add("allocation_arcs", f"allocation row {wrong}: arc {arc[wrong]} does "
                        f"not join {rows.columns['from'][wrong]} to {rows.columns['to'][wrong]}",
