@@ -34,16 +34,27 @@ def deadline(seconds: float, what: str) -> Iterator[bool]:
         yield False
         return
 
+    armed = [True]
+
     def _expire(signum: int, frame: Any) -> None:
+        if not armed[0]:
+            return                          # fired while the block was already leaving
         raise TimeLimitExceeded(
             f"{what} took longer than {seconds:g} s; ask for a longer time_limit_s (up to the "
             "server's MAX_TIME_LIMIT_S) or send a smaller problem",
             headers={"Retry-After": str(max(1, math.ceil(seconds)))})
 
+    # The alarm may fire at any bytecode, even inside these finally blocks: the handler is
+    # installed and the timer armed inside the outer try, so the handler is always put back;
+    # the timer is one-shot, so once it has fired nothing is left to disarm.
     previous = signal.signal(signal.SIGALRM, _expire)
-    signal.setitimer(signal.ITIMER_REAL, seconds)
     try:
-        yield True
+        try:
+            # a timer of less than a microsecond would round to 0, which disarms it
+            signal.setitimer(signal.ITIMER_REAL, max(seconds, 1e-6))
+            yield True
+        finally:
+            armed[0] = False
+            signal.setitimer(signal.ITIMER_REAL, 0)
     finally:
-        signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, previous)
