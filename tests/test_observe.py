@@ -12,11 +12,6 @@ import json
 import logging
 import os
 import re
-import signal
-import socket
-import subprocess
-import sys
-import time
 from collections import Counter
 from collections.abc import Iterator
 from concurrent.futures import ThreadPoolExecutor
@@ -27,6 +22,7 @@ import pytest
 import requests
 from prometheus_client import REGISTRY
 from prometheus_client.parser import text_string_to_metric_families
+from servers import Gunicorn
 
 import service.pipeline
 from service import observe
@@ -366,75 +362,12 @@ ROUNDS = 40            # bound on rounds of parallel solves until both workers h
 PER_ROUND = 6
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        port: int = s.getsockname()[1]
-    return port
-
-
-class Gunicorn:
-    """gunicorn with deploy/gunicorn.conf.py on a loopback port, started by this test."""
-
-    def __init__(self, folder: Path, workers: int) -> None:
-        self.port = _free_port()
-        self.base = f"http://127.0.0.1:{self.port}"
-        self.metrics_dir = folder / "metrics"
-        self.metrics_dir.mkdir()
-        (folder / "run").mkdir()
-        self.log_path = folder / "server.log"
-        env = {k: v for k, v in os.environ.items() if not k.startswith("CERTIMATCH_")}
-        env.update({
-            "CERTIMATCH_BIND": f"127.0.0.1:{self.port}",
-            "CERTIMATCH_WORKERS": str(workers),
-            "PROMETHEUS_MULTIPROC_DIR": str(self.metrics_dir),
-            # gunicorn >= 25.1 may put a control socket here; one folder per server.
-            "XDG_RUNTIME_DIR": str(folder / "run"),
-        })
-        self.log = open(self.log_path, "w+b")  # noqa: SIM115 - closed in stop()
-        # A session of its own, so that the master and its workers go down with one killpg.
-        self.proc = subprocess.Popen(
-            [sys.executable, "-m", "gunicorn", "--config", str(CONF), "service.app:create_app()"],
-            cwd=ROOT, env=env, stdout=self.log, stderr=subprocess.STDOUT,
-            start_new_session=True)
-
-    def output(self) -> str:
-        return self.log_path.read_text(encoding="utf-8", errors="replace")
-
-    def wait_ready(self) -> None:
-        deadline = time.monotonic() + START_SECONDS
-        while time.monotonic() < deadline:
-            if self.proc.poll() is not None:
-                pytest.fail(f"gunicorn exited with {self.proc.returncode}:\n{self.output()}")
-            try:
-                if requests.get(self.base + "/healthz", timeout=2).status_code == 200:
-                    return
-            except requests.RequestException:
-                pass
-            time.sleep(0.1)
-        pytest.fail(f"no 200 from /healthz within {START_SECONDS} s:\n{self.output()}")
-
-    def stop(self) -> None:
-        try:
-            if self.proc.poll() is None:
-                self.proc.terminate()
-            try:
-                self.proc.wait(timeout=STOP_SECONDS)
-            except subprocess.TimeoutExpired:
-                os.killpg(self.proc.pid, signal.SIGKILL)
-                self.proc.wait()
-        finally:
-            self.log.close()
-
-
 @pytest.fixture
 def gunicorn(tmp_path: Path) -> Iterator[Gunicorn]:
-    server = Gunicorn(tmp_path, workers=2)
-    try:
-        server.wait_ready()
+    metrics = tmp_path / "metrics"
+    metrics.mkdir()
+    with Gunicorn(tmp_path, workers=2, env={"PROMETHEUS_MULTIPROC_DIR": str(metrics)}) as server:
         yield server
-    finally:
-        server.stop()
 
 
 def _solve_lines(server: Gunicorn) -> list[dict[str, Any]]:
@@ -472,7 +405,7 @@ def test_counts_from_both_workers_add_up(gunicorn):
                        and s.labels["route"] == "/v1/solve" and s.labels["status"] == "200")
     assert requests_200 == sent
     # Each worker wrote its own file into the directory the operator gave.
-    files = {p.name for p in gunicorn.metrics_dir.glob("counter_*.db")}
+    files = {p.name for p in (gunicorn.folder / "metrics").glob("counter_*.db")}
     assert {f"counter_{pid}.db" for pid in per_worker} <= files
 
     # Every request id came back in the log, once.
