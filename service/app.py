@@ -24,6 +24,8 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     Raises ValueError naming the setting when one is invalid (see service.settings).
     """
     app = Flask(__name__)
+    # openapi.yaml lists every method a route answers; OPTIONS is not one of them (405)
+    app.config["PROVIDE_AUTOMATIC_OPTIONS"] = False
     settings = load_settings(config)
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
     if config:

@@ -498,3 +498,12 @@ def test_any_wrong_value_anywhere_is_4xx(client, path):
         if resp.status_code != 200:
             assert resp.mimetype == "application/problem+json"
     assert send(client, GOOD).status_code == 200
+
+
+@pytest.mark.parametrize("path", ["/v1/solve", "/healthz"])
+def test_options_is_405_like_any_method_the_spec_does_not_list(client, path):
+    # openapi.yaml documents every method a route answers; OPTIONS is none of them.
+    response = client.open(path, method="OPTIONS")
+    assert response.status_code == 405
+    assert response.content_type == "application/problem+json"
+    assert "OPTIONS" not in response.headers["Allow"]
