@@ -10,15 +10,16 @@ from typing import Any
 
 import numpy as np
 
+from schemas.tables import MAX_ANSWER_VALUE
 from service.certificate import Certificate
 from service.dispatch import Solution
 from service.errors import OutOfRange
-from service.network import MAX_EXACT, Network
+from service.network import Network
 
 
 def _values(net: Network, scaled: np.ndarray) -> list:
     if net.cost_scale == 1:
-        if len(scaled) and int(np.abs(scaled).max()) >= MAX_EXACT:
+        if len(scaled) and int(np.abs(scaled).max()) >= MAX_ANSWER_VALUE:
             raise OutOfRange("a cost, potential or objective of this problem reaches 2**53, "
                              "beyond exact JSON numbers; use smaller costs")
         return scaled.tolist()

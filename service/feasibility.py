@@ -73,7 +73,7 @@ def shortfall_of_matching(net: Network, matched: int) -> Shortfall:
 def least_shortfall(net: Network) -> Shortfall:
     """Maximum flow into the hard sinks; its value gives the least hard shortfall."""
     hard = np.flatnonzero(~net.soft)
-    hard_demand = int(net.demand[hard].sum())
+    hard_demand = net.hard_demand
     if hard_demand == 0:
         return Shortfall(0, np.zeros(net.n_user, bool))
     n = net.n_user

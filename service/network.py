@@ -30,10 +30,6 @@ from service.settings import Settings
 #: Fractional costs and penalties are taken to this many decimals (rounded half to even).
 COST_DECIMALS = 6
 
-#: Every objective, dual objective and potential must stay within this magnitude, the
-#: range in which a JSON number is exact in common clients.
-MAX_EXACT = 2**53
-
 #: Min-form cost of a forbidden cell of a dense matrix: far above any real cost (at most
 #: 10**15 after scaling) and any distance, yet with room to add potentials in int64.
 FORBIDDEN = 2**62

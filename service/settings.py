@@ -192,7 +192,6 @@ SETTINGS: tuple[Setting, ...] = (
 )
 
 _BY_NAME = {s.name: s for s in SETTINGS}
-HELP = {s.name.lower(): s.help for s in SETTINGS}
 
 
 def _default(name: str) -> Any:
