@@ -54,7 +54,8 @@ def _settings() -> Settings:
     return current_app.extensions["certimatch.settings"]
 
 
-def _json_body() -> Any:
+def json_body() -> Any:
+    """The parsed JSON body: 415, 413 or 400 problem documents when it is not one."""
     return _read_json()[0]
 
 

@@ -678,6 +678,18 @@ _RENDERERS: dict[str, Callable[[dict[str, Any], dict[str, Any]], None]] = {
 }
 
 
+def _posted_document(post: Post, path: str, doc: dict[str, Any], name: str
+                     ) -> dict[str, Any] | None:
+    """POST ``doc``; the 200 answer, or None after printing what came back instead."""
+    reply = post(path, json.dumps(doc).encode())
+    answer = reply.document()
+    if reply.status != 200 or answer is None:
+        print(f"{name}: {path} answered {reply.status}", file=sys.stderr)
+        _print_problem(reply)
+        return None
+    return answer
+
+
 def _run_demo(post: Post) -> int:
     """Solve and verify every demo problem through ``post``; print what came back."""
     code = EXIT_OK
@@ -685,19 +697,13 @@ def _run_demo(post: Post) -> int:
         if i:
             print()
         problem = demo_problem(name)
-        solved = post("/v1/solve", json.dumps(problem).encode())
-        answer = solved.document()
-        if solved.status != 200 or answer is None:
-            print(f"{name}: /v1/solve answered {solved.status}", file=sys.stderr)
-            _print_problem(solved)
+        answer = _posted_document(post, "/v1/solve", problem, name)
+        if answer is None:
             code = EXIT_ERROR
             continue
         _RENDERERS[name](problem, answer)
-        checked = post("/v1/verify", json.dumps({**problem, "answer": answer}).encode())
-        verdict = checked.document()
-        if checked.status != 200 or verdict is None:
-            print(f"{name}: /v1/verify answered {checked.status}", file=sys.stderr)
-            _print_problem(checked)
+        verdict = _posted_document(post, "/v1/verify", {**problem, "answer": answer}, name)
+        if verdict is None:
             code = EXIT_ERROR
             continue
         print(_verdict_line(verdict))

@@ -24,7 +24,7 @@ def report() -> Response:
         # A query parameter is not part of the problem, so not an invalid-problem (whose
         # pointers point into the body): a plain 400, as HTTP means it.
         raise BadRequest(f"format must be one of {', '.join(FORMATS)}, not {fmt!r}")
-    body = api._json_body()
+    body = api.json_body()
     settings = current_app.extensions["certimatch.settings"]
     document, _ = build_report(body, settings, fmt)
     # The verdict is in the page: a NOT VALID answer is a successfully written report.
