@@ -86,7 +86,7 @@ def certify(net: Network, solution: Solution) -> Certificate:
         room = ~arcs.bounded | (x < arcs.capacity)
         parts.append((arcs.tail[room], arcs.head[room], arcs.cost[room]))
     tail, head, cost = (np.concatenate([p[k] for p in parts]) for k in range(3))
-    paths = bellman_ford(ext.n_nodes, tail, head, cost, dense=block)
+    paths = bellman_ford(ext.n_nodes, tail, head, cost, dense=block, smallest_first=True)
     if not paths.converged:
         raise CertificateFailure("the residual graph has a negative cycle: the engine's flow "
                                  "is not optimal")

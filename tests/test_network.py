@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 import examples
+import networkx as nx
 import numpy as np
 import pytest
 
@@ -14,7 +15,7 @@ from service.dispatch import shape_of
 from service.errors import InvalidProblem, TooLarge, Unbounded
 from service.feasibility import check_bounded, least_shortfall, shortfall_of_matching, witness
 from service.network import COST_DECIMALS, build_network
-from service.paths import bellman_ford, cycle_through_pred
+from service.paths import DenseBlock, bellman_ford, cycle_through_pred
 from service.settings import Settings
 
 
@@ -308,3 +309,74 @@ def test_bellman_ford_finds_a_negative_cycle():
 def test_bellman_ford_with_no_arcs():
     paths = bellman_ford(3, np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, np.int64))
     assert paths.converged and paths.dist.tolist() == [0, 0, 0]
+
+
+def _reference_distances(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray) -> list:
+    # networkx.single_source_bellman_ford_path_length from an added root joined to every
+    # node by 0-cost arcs: the reference the vectorised version must equal. Parallel arcs
+    # collapse to the cheapest, as a shortest path would use it.
+    g = nx.DiGraph()
+    g.add_nodes_from(range(n + 1))
+    g.add_weighted_edges_from((n, v, 0) for v in range(n))
+    for t, h, c in zip(tail.tolist(), head.tolist(), cost.tolist(), strict=True):
+        if not g.has_edge(t, h) or g[t][h]["weight"] > c:
+            g.add_edge(t, h, weight=c)
+    got = nx.single_source_bellman_ford_path_length(g, n)
+    return [got[v] for v in range(n)]
+
+
+def _no_negative_cycle(rng: np.random.Generator, n: int, m: int) -> tuple[np.ndarray, ...]:
+    # Costs c = w + p(t) - p(h) with w >= 0: every cycle costs sum(w) >= 0, yet many arcs
+    # are negative (common practice, no source: reduced costs of a feasible potential).
+    tail, head = rng.integers(0, n, m), rng.integers(0, n, m)
+    keep = tail != head
+    tail, head = tail[keep], head[keep]
+    p = rng.integers(-50, 51, n)
+    return tail, head, rng.integers(0, 20, len(tail)) + p[tail] - p[head]
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_smallest_first_equals_networkx_bellman_ford(seed):
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(2, 300))
+    tail, head, cost = _no_negative_cycle(rng, n, int(rng.integers(1, 6 * n)))
+    fifo = bellman_ford(n, tail, head, cost)
+    first = bellman_ford(n, tail, head, cost, smallest_first=True)
+    assert fifo.converged and first.converged
+    assert first.dist.tolist() == fifo.dist.tolist() == _reference_distances(n, tail, head, cost)
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_smallest_first_with_a_dense_block_equals_networkx(seed):
+    # The residual graph of an optimal assignment: every cell a forward arc, a backward arc
+    # of minus the cost from each chosen column to its row (scipy's linear_sum_assignment
+    # gives the optimum, so no negative cycle exists).
+    from scipy.optimize import linear_sum_assignment
+
+    rng = np.random.default_rng(100 + seed)
+    r, c = int(rng.integers(1, 150)), int(rng.integers(1, 150))
+    costs = rng.integers(-100, 1000, (r, c))
+    rows, cols = linear_sum_assignment(costs)
+    n = r + c
+    tail, head = cols + r, rows.astype(np.int64)
+    back = -costs[rows, cols]
+    block = DenseBlock(0, r, costs)
+    got = bellman_ford(n, tail, head, back, dense=block, smallest_first=True)
+    fifo = bellman_ford(n, tail, head, back, dense=block)
+    cells_t, cells_h = np.divmod(np.arange(r * c), c)
+    all_t = np.concatenate([tail, cells_t])
+    all_h = np.concatenate([head, cells_h + r])
+    all_c = np.concatenate([back, costs.ravel()])
+    assert got.converged
+    assert got.dist.tolist() == fifo.dist.tolist() == _reference_distances(n, all_t, all_h, all_c)
+
+
+def test_smallest_first_still_finds_a_negative_cycle():
+    # The cycle 0 -> 1 -> 2 -> 0 of cost -1 from test_bellman_ford_finds_a_negative_cycle,
+    # inside a longer chain: the scan budget runs out and the FIFO rounds report it.
+    tail = np.array([0, 1, 2, 2, 3, 4])
+    head = np.array([1, 2, 0, 3, 4, 5])
+    cost = np.array([1, -2, 0, 5, -1, 2])
+    paths = bellman_ford(6, tail, head, cost, smallest_first=True, want_pred=True)
+    assert not paths.converged
+    assert sorted(cycle_through_pred(paths, tail)) == [0, 1, 2]
