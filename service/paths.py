@@ -74,23 +74,26 @@ def bellman_ford(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, *
     pred = np.full(n, -1, np.int64)
     empty = np.zeros(0, np.int64)
     by_tail = order_by(tail, n)
+    # the arcs in tail order, so that a node's arcs are one contiguous slice
+    head_t, cost_t = head[by_tail], cost[by_tail]
     indptr = np.searchsorted(tail[by_tail], np.arange(n + 1))
     slot = np.zeros(n, np.int64)            # scratch for de-duplicating improved nodes
 
     def scan(nodes: np.ndarray) -> list[np.ndarray]:
         """Relax the arcs leaving ``nodes``; the nodes improved, possibly repeated."""
         improved = []
-        arcs = by_tail[_ranges(indptr[nodes], indptr[nodes + 1])]
-        if len(arcs):
-            h = head[arcs]
-            cand = dist[tail[arcs]] + cost[arcs]
+        starts, stops = indptr[nodes], indptr[nodes + 1]
+        at = _ranges(starts, stops)
+        if len(at):
+            h = head_t[at]
+            cand = np.repeat(dist[nodes], stops - starts) + cost_t[at]
             better = cand < dist[h]
             if better.any():
-                arcs, h, cand = arcs[better], h[better], cand[better]
+                at, h, cand = at[better], h[better], cand[better]
                 np.minimum.at(dist, h, cand)
                 if want_pred:
                     won = cand == dist[h]
-                    pred[h[won]] = arcs[won]
+                    pred[h[won]] = by_tail[at[won]]
                 improved.append(h)
         if dense is not None:
             improved.append(_relax_dense(dist, nodes, dense))
