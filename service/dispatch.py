@@ -4,8 +4,9 @@
   pair, no capacity but 1, no penalty): linear_sum_assignment on a dense matrix, or
   min_weight_full_bipartite_matching when sparse (arcs, or a matrix more than half null);
   when no matching covers the smaller side, min-cost flow instead.
-* transportation (source->sink arcs only) and transshipment (anything else): stage 1
-  (maximum flow into the hard sinks) then stage 2 (min-cost flow).
+* transportation (source->sink arcs only) and transshipment (anything else): stage 2
+  (min-cost flow) with every hard demand to be met; when that has no flow, stage 1
+  (maximum flow into the hard sinks) for the least hard shortfall, then stage 2 again.
 """
 
 from __future__ import annotations
@@ -74,7 +75,15 @@ def solve(net: Network) -> Solution:
             shortfall = shortfall_of_matching(net, len(flow.arc))
             reject_if_short(net, shortfall)
             return Solution(shape, engine.NAME, flow, shortfall)
+    # Stage 2 with no hard shortfall allowed first: when it finds a flow, every hard demand
+    # is met and stage 1 has nothing to prove (saves a maximum flow in the common case).
+    met = min_cost_flow.solve(net, 0)
+    if met is not None:
+        return Solution(shape, min_cost_flow.NAME, met,
+                        Shortfall(0, np.zeros(net.n_user, bool)))
     shortfall = least_shortfall(net)
     reject_if_short(net, shortfall)
-    return Solution(shape, min_cost_flow.NAME, min_cost_flow.solve(net, shortfall.amount),
-                    shortfall)
+    flow = min_cost_flow.solve(net, shortfall.amount)
+    if flow is None:
+        raise RuntimeError("no flow within the least hard shortfall stage 1 found")
+    return Solution(shape, min_cost_flow.NAME, flow, shortfall)

@@ -13,21 +13,23 @@ __all__ = ["NAME", "solve"]
 NAME = "min_cost_flow"
 
 
-def solve(net: Network, hard_shortfall: int) -> Flow:
-    """A least-cost flow of the extended network, on the user arcs.
+def solve(net: Network, hard_shortfall: int) -> Flow | None:
+    """A least-cost flow of the extended network, on the user arcs; None when there is none.
 
     Parameters
     ----------
     net : any network.
-    hard_shortfall : the least hard shortfall from stage 1; caps the hard pool.
+    hard_shortfall : caps the hard pool: the least hard shortfall from stage 1, or 0 to
+        try meeting every hard demand (None comes back when that cannot be done).
 
     Notes
     -----
     The extended network (super-source with supply equal to total demand, super-sink,
-    shortfall arcs) always has a feasible flow: every sink can be fed by its shortfall
-    arc, and the pool holds exactly the stage-1 shortfall. OR-Tools implements the cost
-    scaling push-relabel method (Goldberg 1997; Ahuja, Magnanti & Orlin 1993, §10.3),
-    integral for integral data. Unbounded arcs get ``net.unbounded_capacity()``.
+    shortfall arcs) has a feasible flow when the pool holds at least the least hard
+    shortfall: every soft sink can be fed by its shortfall arc, the hard ones by the pool.
+    OR-Tools implements the cost scaling push-relabel method (Goldberg 1997; Ahuja,
+    Magnanti & Orlin 1993, §10.3), integral for integral data. Unbounded arcs get
+    ``net.unbounded_capacity()``.
     """
     arcs = net.arcs
     ext = extend(net, hard_shortfall)
@@ -43,6 +45,8 @@ def solve(net: Network, hard_shortfall: int) -> Flow:
     supplies[ext.T] = -net.total_demand
     solver.set_nodes_supplies(np.arange(ext.n_nodes, dtype=np.int32), supplies)
     status = solver.solve()
+    if status == solver.INFEASIBLE:
+        return None
     if status != solver.OPTIMAL:
         raise OutOfRange(f"the min-cost-flow stage could not run ({status.name}); the costs or "
                          "capacities are too large for exact 64-bit arithmetic")
