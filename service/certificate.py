@@ -27,8 +27,11 @@ def exact_dot(a: np.ndarray, b: np.ndarray) -> int:
     """Exact integer sum of products; OutOfRange when it could leave 64-bit range."""
     if len(a) == 0:
         return 0
-    bound = float(np.abs(a).astype(np.float64) @ np.abs(b).astype(np.float64))
-    if bound >= _INT64_SAFE:
+    # max|a| x max|b| x n first: two reductions, no copies, enough in the common case;
+    # the tight bound sum |a_i b_i| (two float copies) only when that one is too coarse
+    coarse = max(-int(a.min()), int(a.max())) * max(-int(b.min()), int(b.max())) * len(a)
+    if coarse >= _INT64_SAFE and float(
+            np.abs(a).astype(np.float64) @ np.abs(b).astype(np.float64)) >= _INT64_SAFE:
         raise OutOfRange("a sum of cost x flow products could exceed 2**62; "
                          "use smaller costs or capacities")
     return int(np.asarray(a, np.int64) @ np.asarray(b, np.int64))

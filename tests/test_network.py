@@ -1,4 +1,4 @@
-"""The network model, shape dispatch, stage 1 and shortest paths, without HTTP."""
+"""The network model, shape dispatch, stage 1, shortest paths and exact sums, without HTTP."""
 
 from __future__ import annotations
 
@@ -11,8 +11,9 @@ import pytest
 
 from schemas import ProblemSchema
 from service import dispatch
+from service.certificate import exact_dot
 from service.dispatch import shape_of
-from service.errors import InvalidProblem, TooLarge, Unbounded
+from service.errors import InvalidProblem, OutOfRange, TooLarge, Unbounded
 from service.feasibility import check_bounded, least_shortfall, shortfall_of_matching, witness
 from service.network import COST_DECIMALS, build_network
 from service.paths import DenseBlock, bellman_ford, cycle_through_pred
@@ -380,3 +381,23 @@ def test_smallest_first_still_finds_a_negative_cycle():
     paths = bellman_ford(6, tail, head, cost, smallest_first=True, want_pred=True)
     assert not paths.converged
     assert sorted(cycle_through_pred(paths, tail)) == [0, 1, 2]
+
+
+# -- exact sums of products -------------------------------------------------------------------
+
+
+def test_exact_dot_is_exact_beyond_double_precision():
+    # 2**53 + 1 is not a double: a float dot would round it (common practice, no source)
+    a = np.array([2**53 + 1, 3], np.int64)
+    b = np.array([1, -1], np.int64)
+    assert exact_dot(a, b) == 2**53 - 2
+
+
+def test_exact_dot_refuses_only_what_could_overflow():
+    big = np.array([2**40, 2**40], np.int64)
+    with pytest.raises(OutOfRange):
+        exact_dot(big, np.array([2**22, 2**22], np.int64))     # sum |a b| = 2**63
+    # max|a| x max|b| x n is over 2**62 here, the true sum of |a_i b_i| is tiny: accepted
+    a = np.array([2**61, 1], np.int64)
+    b = np.array([0, 2**3], np.int64)
+    assert exact_dot(a, b) == 8
