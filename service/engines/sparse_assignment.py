@@ -29,14 +29,16 @@ def solve(net: Network) -> Flow | None:
     if len(arcs) == 0:
         return None
     rows, cols = arcs.tail, arcs.head - net.sink_offset
-    weights = arcs.cost - arcs.cost.min() + 1
-    graph = csr_matrix((weights.astype(np.float64), (rows, cols)), shape=(n, m))
+    # one sort by (row, column) builds the CSR directly and maps the matching back to arcs
+    keys = rows * m + cols
+    order = order_by(keys, n * m)
+    weights = arcs.cost[order] - arcs.cost.min() + 1
+    indptr = np.searchsorted(rows[order], np.arange(n + 1))
+    graph = csr_matrix((weights.astype(np.float64), cols[order], indptr), shape=(n, m))
     try:
         r, c = min_weight_full_bipartite_matching(graph)
     except ValueError:  # "no full matching exists"
         return None
-    keys = rows * m + cols
-    order = order_by(keys, n * m)
     chosen = arcs.id[order[np.searchsorted(keys[order], r.astype(np.int64) * m + c)]]
     chosen.sort()
     return Flow(arc=chosen, amount=np.ones(len(chosen), np.int64))
