@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from itertools import chain
 from typing import Any
 
 from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
@@ -12,6 +13,10 @@ OBJECTIVES = ("min", "max")
 UNMET_POLICIES = ("minimize", "reject")
 #: Largest time_limit_s a request may name (one day); the server caps it lower.
 MAX_TIME_LIMIT = 86_400
+#: The lists that declare ids, in the order the ids are numbered (README, "Determinism").
+ID_TABLES = ("sources", "nodes", "sinks")
+#: The columns of an arc that name ids.
+ARC_ENDS = ("from", "to")
 
 
 class SourceSchema(Schema):
@@ -55,7 +60,7 @@ class ProblemSchema(Schema):
     sinks = RecordList(SinkSchema, required=True)
     nodes = RecordList(NodeSchema)
     costs = CostMatrix()
-    arcs = RecordList(ArcSchema)
+    arcs = RecordList(ArcSchema, references=ARC_ENDS, declared_in=ID_TABLES)
     objective = fields.String(load_default="min", validate=validate.OneOf(OBJECTIVES))
     unmet_demand = fields.String(load_default="minimize",
                                  validate=validate.OneOf(UNMET_POLICIES))
@@ -74,3 +79,9 @@ class ProblemSchema(Schema):
             raise ValidationError("give costs (a matrix) or arcs (a list)", "costs")
         if "nodes" in given and "arcs" not in given:
             raise ValidationError("nodes need arcs to reach them", "nodes")
+
+
+def declared_ids(data: dict[str, Any]) -> list[str]:
+    """The ids of a loaded problem in numbering order: sources, nodes, sinks."""
+    return list(chain.from_iterable(data[name].columns["id"] for name in ID_TABLES
+                                    if data.get(name) is not None))

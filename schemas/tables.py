@@ -2,8 +2,14 @@
 
 A request may carry a 4000 x 4000 cost matrix or a million arcs; checking each cell with a
 marshmallow field would cost seconds in Python. These fields check the *structure* with
-C-level passes (``map``, ``set``) and the *numbers* with numpy, and only walk the input
+C-level passes (``map``, ``sum``) and the *numbers* with numpy, and only walk the input
 element by element to name the culprits once something is known to be wrong.
+
+On large inputs the cost is the number of passes over the parsed objects (each pass touches
+millions of scattered Python objects), so every check is folded into a pass that is needed
+anyway: numpy's conversion of a numeric column is also its type check, the count of keys
+per record stands in for a set of all keys, and ids that name other ids are checked by the
+lookup that resolves them (``references``).
 
 A list of records is described by an ordinary marshmallow row schema (the wire format, also
 used by the OpenAPI document); :class:`RecordList` derives its columns from that schema.
@@ -13,9 +19,9 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
-from contextvars import ContextVar
 from dataclasses import dataclass, field
 from itertools import chain, repeat
+from operator import is_not
 from typing import Any
 
 import numpy as np
@@ -30,24 +36,16 @@ MAX_ERRORS_PER_LIST = 50
 
 _NUMBER_TYPES = {int, float}
 
-#: Whether the body being loaded may hold JSON booleans (unknown: assume so). When it
-#: cannot, numpy's own type inference is a complete type check of a cost matrix: any
-#: string, null or nested list makes it leave the numeric kinds, and only a boolean could
-#: pass as a number unseen.
-_booleans_possible: ContextVar[bool] = ContextVar("booleans_possible", default=True)
-
 
 @contextmanager
 def body_source(raw: bytes | None) -> Iterator[None]:
-    """Within this block, loads come from ``raw`` (None: unknown)."""
-    if raw is None:
-        yield
-        return
-    token = _booleans_possible.set(b"true" in raw or b"false" in raw)
-    try:
-        yield
-    finally:
-        _booleans_possible.reset(token)
+    """Formerly told the bulk checks whether the raw body could hold booleans.
+
+    The checks no longer need the raw bytes (a boolean can only have become a 0 or a 1, and
+    those few entries are looked at by type), and scanning 20 MB for ``true`` cost more than
+    that. Kept as a no-op until the pipeline stops calling it.
+    """
+    yield
 
 
 #: Largest magnitude of a number in an answer (objective, potentials): exact in JSON.
@@ -73,14 +71,89 @@ def _bad_number(v: Any, kind: str, bound: int = MAX_ABS_VALUE) -> bool:
     return kind == "count" and (v < 0 or v != int(v))
 
 
+def _lowest(kind: str, bound: int, minimum: int | None) -> int:
+    """The least value a number of this domain may take."""
+    low = -bound if minimum is None else max(-bound, minimum)
+    return max(low, 0) if kind == "count" else low
+
+
+def _plain_numbers(values: list[Any], shape: tuple[int, ...], kind: str, *,
+                   bound: int = MAX_ABS_VALUE, minimum: int | None = None
+                   ) -> np.ndarray | None:
+    """``values`` (a list, or a list of equal-length lists) as one array of ``shape`` when
+    every entry is a number of the domain, else None: then look entry by entry.
+
+    One conversion is the type check too: numpy's type inference leaves the numeric kinds
+    (or the shape) for any string, null, object or list, and turns integers too large for
+    int64 into objects or floats beyond the bound. Only a boolean passes, as 1 or 0, so
+    only the entries that came out 0 or 1 are looked at by type. The array is int64 when
+    every entry is a JSON integer, else float64.
+    """
+    try:
+        arr = np.array(values)
+    except (ValueError, OverflowError, TypeError):
+        return None                     # inhomogeneous nesting, oversized numbers
+    if arr.shape != shape or arr.dtype.kind not in "if":
+        return None
+    if not arr.size:
+        return arr.astype(np.int64)
+    lo, hi = arr.min(), arr.max()
+    # min/max need no temporary array; NaN fails both comparisons
+    if not (_lowest(kind, bound, minimum) <= lo and hi <= bound):
+        return None
+    if arr.dtype.kind == "f":
+        if hi == bound or lo == -bound:
+            return None                 # maybe a larger integer rounded onto the bound
+        if kind == "count" and not np.array_equal(arr, np.floor(arr)):
+            return None
+    if lo <= 1 and hi >= 0 and _hides_boolean(arr, values):
+        return None
+    return arr
+
+
+def _hides_boolean(arr: np.ndarray, values: list[Any]) -> bool:
+    """Whether a JSON true or false became one of the 1s or 0s of ``arr``."""
+    flat = arr.reshape(-1)
+    if flat.dtype.kind == "i":
+        maybe = np.flatnonzero(flat.view(np.uint64) <= 1)   # as unsigned, only 0 and 1 are <= 1
+    else:
+        maybe = np.flatnonzero((flat == 0) | (flat == 1))
+    if not len(maybe):
+        return False
+    if 4 * len(maybe) > len(flat):
+        # mostly 0s and 1s: one pass over every entry is cheaper than picking them out
+        entries = chain.from_iterable(values) if arr.ndim == 2 else values
+        return bool in set(map(type, entries))
+    if arr.ndim == 2:
+        rows, cols = np.divmod(maybe, arr.shape[1])
+        picked = map(list.__getitem__, map(values.__getitem__, rows.tolist()), cols.tolist())
+    else:
+        picked = map(values.__getitem__, maybe.tolist())
+    return bool in set(map(type, picked))
+
+
 def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
                   bound: int = MAX_ABS_VALUE, minimum: int | None = None
                   ) -> tuple[np.ndarray, np.ndarray, list[int]]:
     """Check a list of JSON numbers in bulk.
 
-    Returns ``(array, present, bad)``: float64 values (0 where null), a mask of non-null
-    entries and the indices of the bad entries (empty when all are good).
+    Returns ``(array, present, bad)``: the values (0 where null), a mask of the non-null
+    entries and the indices of the bad entries (empty when all are good). The values are
+    float64, or int64 when the list may not hold nulls and every entry is a JSON integer.
     """
+    n = len(values)
+    if not nullable:
+        # a list that may hold nulls goes by type at once: a null would make numpy's
+        # inference fall back to objects, a pass for nothing
+        plain = _plain_numbers(values, (n,), kind, bound=bound, minimum=minimum)
+        if plain is not None:
+            return plain, np.ones(n, bool), []
+    return _check_each(values, kind, nullable=nullable, bound=bound, minimum=minimum)
+
+
+def _check_each(values: list[Any], kind: str, *, nullable: bool, bound: int,
+                minimum: int | None) -> tuple[np.ndarray, np.ndarray, list[int]]:
+    """check_numbers for lists with nulls or bad entries: types first, then the domain."""
     n = len(values)
     types = set(map(type, values))
     allowed = _NUMBER_TYPES | ({type(None)} if nullable else set())
@@ -94,7 +167,8 @@ def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
         bad = [i for i, v in enumerate(values)
                if not (nullable and v is None) and (
                    _bad_number(v, kind, bound) or (minimum is not None and v < minimum))]
-        return np.zeros(n), np.ones(n, bool), bad
+        present = np.fromiter(map(is_not, values, repeat(None)), bool, n)
+        return np.zeros(n), present, bad
     present = ~np.isnan(arr) if nullable else np.ones(n, bool)
     vals = np.where(present, arr, 0.0)
     ok = np.isfinite(vals) & (np.abs(vals) <= bound)
@@ -113,18 +187,24 @@ def check_numbers(values: list[Any], kind: str, *, nullable: bool = False,
 
 def check_ids(values: list[Any]) -> list[int]:
     """Indices of entries that are not non-empty strings."""
-    if set(map(type, values)) <= {str} and all(map(len, values)):
+    if set(map(type, values)) <= {str} and all(values):   # a string is true when not empty
         return []
     return [i for i, v in enumerate(values) if type(v) is not str or not v]
 
 
 @dataclass
 class Table:
-    """Columns of a checked list of records: numpy arrays for numbers, lists for ids."""
+    """Columns of a checked list of records: numpy arrays for numbers, lists for ids.
+
+    ``present`` masks the non-null entries of optional columns without a default;
+    ``resolved`` holds, for each reference column (RecordList), the positions of the ids
+    it names, -1 where it names none.
+    """
 
     length: int
     columns: dict[str, Any] = field(default_factory=dict)
     present: dict[str, np.ndarray] = field(default_factory=dict)
+    resolved: dict[str, np.ndarray] = field(default_factory=dict)
 
     def __len__(self) -> int:
         return self.length
@@ -158,9 +238,16 @@ class RecordList(fields.Field):
     Integer fields of the row schema become whole numbers >= 0, other numbers finite
     numbers, strings ids. ``load_default`` of a row field fills missing keys; a field
     without one and not required may be absent or null (``present`` says where).
+
+    ``references`` names required id columns whose values name ids declared by the lists
+    ``declared_in`` of the same document (their ``id`` keys, numbered across the lists in
+    that order). They are resolved here into ``Table.resolved``: every declared id is a
+    non-empty string, so an entry that resolves is one, and the lookup doubles as the check.
+    Entries that are strings but no declared id stay -1, for the caller to report.
     """
 
-    def __init__(self, row_schema: type[Schema], **kwargs: Any) -> None:
+    def __init__(self, row_schema: type[Schema], *, references: tuple[str, ...] = (),
+                 declared_in: tuple[str, ...] = (), **kwargs: Any) -> None:
         super().__init__(**kwargs)
         self.row_schema = row_schema
         schema = row_schema()
@@ -169,63 +256,128 @@ class RecordList(fields.Field):
         self.bounds = {f.data_key or name: (f.metadata.get("bound", MAX_ABS_VALUE),
                                             f.metadata.get("minimum"))
                        for name, f in schema.fields.items()}
+        self.known = {key for key, _, _ in self.specs}
+        # required columns first: once their keys account for every key of every record,
+        # the optional columns are known to be absent without extracting them
+        self.order = sorted(self.specs, key=lambda spec: not spec[2].required)
+        for key in references:
+            if not any(k == key and kind == "id" and f.required for k, kind, f in self.specs):
+                raise TypeError(f"reference column {key!r} must be a required id")
+        self.references = references
+        self.declared_in = declared_in
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Table:
         if not isinstance(value, list):
             raise ValidationError("must be a list of objects")
+        index = self._declared(data) if self.references else None
         rows = value
         n = len(rows)
         errors: dict = {}
-        if n and set(map(type, rows)) != {dict}:
-            for i, row in enumerate(rows):
-                if type(row) is not dict:
-                    errors[i] = ["must be an object"]
-            raise ValidationError(_cap(errors))
-        known = {key for key, _, _ in self.specs}
-        unknown = set().union(*rows) - known if n else set()
-        if unknown:
-            for i, row in enumerate(rows):
-                for key in row.keys() - known:
-                    _add(errors, i, key, "unknown field")
+        try:
+            # dict.get refuses anything but an object: the extraction checks the rows
+            first = list(map(dict.get, rows, repeat(self.order[0][0])))
+        except TypeError:
+            raise ValidationError(_cap({i: ["must be an object"] for i, row in enumerate(rows)
+                                        if type(row) is not dict})) from None
+        keys = sum(map(len, rows))
+        # keys of the columns seen so far whose values are not null; never more than the
+        # true count, so "counted == keys" proves there are no other keys and no nulls
+        counted = 0
         table = Table(n)
-        for key, kind, f in self.specs:
-            col = list(map(dict.get, rows, repeat(key)))
-            default = f.load_default
-            has_default = default is not missing
+        for key, kind, f in self.order:
             optional = not f.required
+            default = f.load_default
+            if optional and counted == keys:
+                self._absent(table, key, kind, default)
+                continue
+            col = first if key == self.order[0][0] else list(map(dict.get, rows, repeat(key)))
             if kind == "id":
+                table.columns[key] = col
+                if key in self.references and index is not None:
+                    at = _positions(col, index)
+                    if at is not None:
+                        table.resolved[key] = at
+                        if not n or at.min() >= 0:
+                            counted += n
+                            continue
                 bad = check_ids(col)
                 for i in bad:
-                    msg = ("missing" if key not in rows[i] else "must be a non-empty string")
-                    _add(errors, i, key, msg)
-                table.columns[key] = col
+                    _add(errors, i, key, "missing" if key not in rows[i]
+                         else "must be a non-empty string")
+                counted += n - len(bad)
                 continue
-            nullable = optional
             bound, minimum = self.bounds[key]
-            vals, present, bad = check_numbers(col, kind, nullable=nullable, bound=bound,
+            vals, present, bad = check_numbers(col, kind, nullable=optional, bound=bound,
                                                minimum=minimum)
             for i in bad:
                 _add(errors, i, key, "missing" if key not in rows[i]
                      else number_detail(kind, bound, minimum))
-            if optional and has_default and not present.all():
+            counted += int(np.count_nonzero(present))
+            if default is not missing and not present.all():
                 vals = np.where(present, vals, float(default))
                 present = np.ones(n, bool)
-            if f.required and not present.all():
-                for i in np.flatnonzero(~present).tolist():
-                    _add(errors, i, key, "missing" if key not in rows[i] else "must not be null")
-            table.columns[key] = vals.astype(np.int64) if kind == "count" else vals
-            if optional and not has_default:
+            table.columns[key] = vals.astype(np.int64, copy=False) if kind == "count" else vals
+            if optional and default is missing:
                 table.present[key] = present
+        if counted != keys:
+            # explicit nulls or unknown keys: look at the keys themselves
+            errors = self._unknown_keys(rows, errors)
         if errors:
             raise ValidationError(_cap(errors))
         return table
+
+    def _declared(self, data: Any) -> dict[str, int] | None:
+        """Position of each id the document declares; None unless all are readable (then
+        their own lists report what is wrong, and the references are checked as ids)."""
+        if not isinstance(data, dict):
+            return None
+        lists = [data[name] for name in self.declared_in if data.get(name) is not None]
+        try:
+            ids: list[Any] = list(chain.from_iterable(
+                map(dict.get, rows, repeat("id")) for rows in lists))
+        except TypeError:               # a declaring list that is no list of objects
+            return None
+        if check_ids(ids):
+            return None
+        return dict(zip(ids, range(len(ids)), strict=True))
+
+    def _unknown_keys(self, rows: list[dict[str, Any]], errors: dict) -> dict:
+        """``errors`` after the unknown keys of every record (listed first, per record)."""
+        if not rows or set().union(*rows) <= self.known:
+            return errors
+        unknown: dict = {}
+        for i, row in enumerate(rows):
+            for key in sorted(row.keys() - self.known):
+                _add(unknown, i, key, "unknown field")
+        for i, messages in errors.items():
+            unknown.setdefault(i, {}).update(messages)
+        return unknown
+
+    @staticmethod
+    def _absent(table: Table, key: str, kind: str, default: Any) -> None:
+        """Fill a column no record has: its default, or zeros marked not present."""
+        dtype = np.int64 if kind == "count" else np.float64
+        if default is missing:
+            table.columns[key] = np.zeros(table.length, dtype)
+            table.present[key] = np.zeros(table.length, bool)
+        else:
+            table.columns[key] = np.full(table.length, default, dtype)
+
+
+def _positions(names: list[Any], index: dict[str, int]) -> np.ndarray | None:
+    """Position of each name in ``index`` (-1: not there); None if one cannot be a key."""
+    try:
+        return np.fromiter(map(index.get, names, repeat(-1)), np.int64, len(names))
+    except TypeError:                   # a list or an object
+        return None
 
 
 class CostMatrix(fields.Field):
     """A dense matrix of numbers or nulls.
 
     Loads an int64 array when every cell is a whole JSON integer (the common case, and
-    the cheapest: no copy, no NaN), else a float64 array with NaN for null.
+    the cheapest: no copy, no NaN), a float64 array when some are fractional, and a float64
+    array with NaN for null when some are null.
     """
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any
@@ -245,22 +397,16 @@ class CostMatrix(fields.Field):
                 if w != widths[0]:
                     errors[i] = [f"has {w} entries, row 0 has {widths[0]}"]
             raise ValidationError(_cap(errors))
-        width = widths[0] if rows else 0
-        if rows and not _booleans_possible.get():
-            fast = self._numeric(rows, width)
-            if fast is not None:
-                return fast
-        types = set(map(type, chain.from_iterable(rows)))
-        if types <= {int}:
-            try:
-                whole = np.array(rows, dtype=np.int64).reshape(len(rows), width)
-            except OverflowError:
-                whole = None
-            if whole is not None and (not whole.size or
-                                      int(np.abs(whole).max()) <= MAX_ABS_VALUE):
-                return whole
+        if not rows:
+            return np.zeros((0, 0), np.int64)
+        width = widths[0]
+        plain = _plain_numbers(rows, (len(rows), width), "number")
+        if plain is not None:
+            return plain
+        # nulls, or a bad cell: every cell by type
         cells = list(chain.from_iterable(rows))
-        vals, present, bad = check_numbers(cells, "number", nullable=True)
+        vals, present, bad = _check_each(cells, "number", nullable=True,
+                                         bound=MAX_ABS_VALUE, minimum=None)
         if bad:
             for k in bad[: MAX_ERRORS_PER_LIST + 1]:
                 errors.setdefault(k // width, {})[k % width] = [
@@ -269,22 +415,6 @@ class CostMatrix(fields.Field):
         out = vals.reshape(len(rows), width)
         out[~present.reshape(out.shape)] = np.nan
         return out
-
-
-    @staticmethod
-    def _numeric(rows: list, width: int) -> np.ndarray | None:
-        """The matrix by numpy's inference alone, when every cell is an in-range number."""
-        try:
-            arr = np.array(rows)
-        except (ValueError, OverflowError):
-            return None
-        if arr.shape != (len(rows), width) or arr.dtype.kind not in "if" or not arr.size:
-            return None                     # nulls, strings, huge integers: the full check
-        if arr.dtype.kind == "f" and not np.isfinite(arr).all():
-            return None
-        if float(np.abs(arr).max()) > MAX_ABS_VALUE:
-            return None
-        return arr.astype(np.int64, copy=False) if arr.dtype.kind == "i" else arr
 
 
 class Number(fields.Field):

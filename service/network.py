@@ -19,11 +19,11 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
-from itertools import repeat
 from typing import Any
 
 import numpy as np
 
+from schemas.problem import ARC_ENDS, ID_TABLES, declared_ids
 from service.errors import InvalidProblem, TooLarge
 from service.settings import Settings
 
@@ -177,13 +177,9 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
         errors.append({"pointer": "/sources", "detail": "must hold at least one source"})
     if n_snk == 0:
         errors.append({"pointer": "/sinks", "detail": "must hold at least one sink"})
-    groups = [("sources", sources), ("nodes", nodes), ("sinks", sinks)]
-    ids: list[str] = []
-    for _, table in groups:
-        if table is not None:
-            ids.extend(table.columns["id"])
+    groups = [(name, data.get(name)) for name in ID_TABLES]
+    ids = declared_ids(data)
     errors.extend(_check_ids(ids, groups, settings.max_id_length))
-    index = dict(zip(ids, range(len(ids)), strict=True)) if not errors else {}
     if errors:
         raise InvalidProblem(errors)
 
@@ -199,7 +195,7 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
         whole_penalties = _whole(penalty[penalty_present])
         if matrix.dtype == np.int64 and whole_penalties:
             scale = 1                       # whole costs, every cell allowed: no copy
-            dense = matrix if sign > 0 else -matrix
+            dense = _min_form(matrix, scale, sign)
         else:
             allowed = ~np.isnan(matrix)
             values = np.where(allowed, matrix, 0.0)
@@ -208,13 +204,13 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
             dense[~allowed] = FORBIDDEN
     else:
         table = data["arcs"]
-        tail, head = _arc_ends(table, index, settings, errors)
+        tail, head = _arc_ends(table, settings, errors)
         if errors:
             raise InvalidProblem(errors)
         scale = _scale_for(table.columns["cost"], penalty[penalty_present])
         bounded = table.present["capacity"].copy()
         arc_list = Arcs(id=np.arange(len(tail), dtype=np.int64), tail=tail, head=head,
-                        cost=_scaled(table.columns["cost"], scale) * sign,
+                        cost=_min_form(table.columns["cost"], scale, sign),
                         capacity=np.where(bounded, table.columns["capacity"], 0).astype(np.int64),
                         bounded=bounded)
     return Network(
@@ -231,11 +227,20 @@ def _scale_for(costs: np.ndarray, penalties: np.ndarray) -> int:
 
 
 def _whole(values: np.ndarray) -> bool:
-    return bool(np.all(values == np.floor(values)))
+    return values.dtype.kind == "i" or bool(np.all(values == np.floor(values)))
 
 
 def _scaled(values: np.ndarray, scale: int) -> np.ndarray:
+    """Values on the integer grid of ``scale``; integers are exact as they are."""
+    if values.dtype.kind == "i":
+        return values * scale if scale != 1 else values
     return np.rint(values * scale).astype(np.int64)
+
+
+def _min_form(values: np.ndarray, scale: int, sign: int) -> np.ndarray:
+    """Costs as the engines take them; whole costs of a min problem are used as loaded."""
+    scaled = _scaled(values, scale)
+    return scaled if sign > 0 else -scaled
 
 
 def _check_ids(ids: list[str], groups: list, max_len: int) -> list[dict[str, str]]:
@@ -273,18 +278,17 @@ def _check_matrix(matrix: np.ndarray, n_src: int, n_snk: int, settings: Settings
                        "detail": f"has {cols} entries, expected {n_snk} (one per sink)"})
 
 
-def _arc_ends(arcs: Any, index: dict[str, int], settings: Settings,
+def _arc_ends(arcs: Any, settings: Settings,
               errors: list[dict[str, str]]) -> tuple[np.ndarray, np.ndarray]:
+    """(tail, head) node indices as the schema resolved them (RecordList ``references``);
+    -1 marks a name that is no declared id."""
     n = len(arcs)
     _limit(n, settings.max_arcs, "arcs", "MAX_ARCS")
-    ends = {}
-    for key in ("from", "to"):
-        names = arcs.columns[key]
-        idx = np.fromiter(map(index.get, names, repeat(-1)), dtype=np.int64, count=n)
+    for key in ARC_ENDS:
+        names, idx = arcs.columns[key], arcs.resolved[key]
         for i in np.flatnonzero(idx < 0)[:50].tolist():
             errors.append({"pointer": f"/arcs/{i}/{key}", "detail": f"unknown id {names[i]!r}"})
-        ends[key] = idx
-    tail, head = ends["from"], ends["to"]
+    tail, head = (arcs.resolved[key] for key in ARC_ENDS)
     loops = np.flatnonzero((tail == head) & (tail >= 0))
     for i in loops[:50].tolist():
         errors.append({"pointer": f"/arcs/{i}",
