@@ -17,8 +17,7 @@ used by the OpenAPI document); :class:`RecordList` derives its columns from that
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Iterator
-from contextlib import contextmanager
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from itertools import chain, repeat
 from operator import is_not
@@ -35,17 +34,6 @@ MAX_ABS_VALUE = 10**9
 MAX_ERRORS_PER_LIST = 50
 
 _NUMBER_TYPES = {int, float}
-
-
-@contextmanager
-def body_source(raw: bytes | None) -> Iterator[None]:
-    """Formerly told the bulk checks whether the raw body could hold booleans.
-
-    The checks no longer need the raw bytes (a boolean can only have become a 0 or a 1, and
-    those few entries are looked at by type), and scanning 20 MB for ``true`` cost more than
-    that. Kept as a no-op until the pipeline stops calling it.
-    """
-    yield
 
 
 #: Largest magnitude of a number in an answer (objective, potentials): exact in JSON.

@@ -56,11 +56,6 @@ def _settings() -> Settings:
 
 def json_body() -> Any:
     """The parsed JSON body: 415, 413 or 400 problem documents when it is not one."""
-    return _read_json()[0]
-
-
-def _read_json() -> tuple[Any, bytes]:
-    """The parsed body and its bytes."""
     mimetype = request.mimetype
     if mimetype != "application/json" and not (
             mimetype.startswith("application/") and mimetype.endswith("+json")):
@@ -68,7 +63,7 @@ def _read_json() -> tuple[Any, bytes]:
         raise UnsupportedMediaType(f"send the body as application/json, not {got}")
     raw = _read_body()
     try:
-        return orjson.loads(raw), raw
+        return orjson.loads(raw)
     except orjson.JSONDecodeError as e:
         raise MalformedBody(f"the body is not valid JSON: {e}") from None
 
@@ -94,13 +89,13 @@ def json_response(doc: Any, status: int = 200,
     return Response(orjson.dumps(doc), status=status, content_type=content_type)
 
 
-def _solve_counted(body: Any, settings: Settings, raw: bytes) -> dict[str, Any]:
+def _solve_counted(body: Any, settings: Settings) -> dict[str, Any]:
     """``solve_body`` with its outcome counted for /metrics (shape and solver from the answer)."""
     if not settings.metrics_enabled:
-        return solve_body(body, settings, source=raw)
+        return solve_body(body, settings)
     started = time.perf_counter()
     try:
-        answer = solve_body(body, settings, source=raw)
+        answer = solve_body(body, settings)
     except CertificateFailure:
         observe.count_certificate_failure()
         raise
@@ -111,16 +106,14 @@ def _solve_counted(body: Any, settings: Settings, raw: bytes) -> dict[str, Any]:
 @bp.post("/v1/solve")
 def solve() -> Response:
     with request_scope():
-        body, raw = _read_json()
-        return json_response(_solve_counted(body, _settings(), raw))
+        return json_response(_solve_counted(json_body(), _settings()))
 
 
 @bp.post("/v1/verify")
 def verify() -> Response:
     settings = _settings()
     with request_scope():
-        body, raw = _read_json()
-        result = verify_body(body, settings, source=raw)
+        result = verify_body(json_body(), settings)
     if settings.metrics_enabled:
         observe.count_verification(result.get("valid") is True)
     return json_response(result)

@@ -17,7 +17,6 @@ from typing import Any
 from marshmallow import ValidationError
 
 from schemas import AnswerSchema, ProblemSchema, VerifyRequestSchema, to_pointers
-from schemas.tables import body_source
 from service import dispatch
 from service.answer import build_answer
 from service.certificate import certify
@@ -41,18 +40,15 @@ def _load(schema: Any, body: Any) -> dict[str, Any]:
         raise InvalidProblem(to_pointers(e.messages)) from None
 
 
-def solve_body(body: Any, settings: Settings, timings: dict[str, float] | None = None, *,
-               source: bytes | None = None) -> dict[str, Any]:
+def solve_body(body: Any, settings: Settings,
+               timings: dict[str, float] | None = None) -> dict[str, Any]:
     """The 200 answer for a problem, or a ServiceError.
 
-    ``timings``, when given, receives the seconds spent in each phase (for the benchmark);
-    ``source``, the bytes ``body`` was parsed from, lets the schema skip checks the bytes
-    already answer.
+    ``timings``, when given, receives the seconds spent in each phase (for the benchmark).
     """
     clock = _Clock(timings)
     with request_scope(), deadline(time_limit(body, settings), "solving this problem"):
-        with body_source(source):
-            data = clock.run("validate", _load, _problem_schema, body)
+        data = clock.run("validate", _load, _problem_schema, body)
         net = clock.run("normalise", build_network, data, settings)
         solution = clock.run("solve", dispatch.solve, net)
         cert = clock.run("certify", certify, net, solution)
@@ -123,11 +119,9 @@ def self_check(net: Network, answer: dict[str, Any]) -> None:
             + "; ".join(f"{c['name']}: {c['detail']}" for c in failed), checks=failed)
 
 
-def verify_body(body: Any, settings: Settings, *,
-                source: bytes | None = None) -> dict[str, Any]:
+def verify_body(body: Any, settings: Settings) -> dict[str, Any]:
     """``{"valid", "checks"}`` for a problem plus an answer."""
     with request_scope(), deadline(time_limit(body, settings), "checking this answer"):
-        with body_source(source):
-            data = _load(_verify_schema, body)
+        data = _load(_verify_schema, body)
         answer = data.pop("answer")
         return verify_answer(build_network(data, settings), answer)

@@ -194,6 +194,17 @@ def test_an_error_logged_inside_a_request_carries_its_id(client, log_lines, monk
     assert [r["status"] for r in records if r["message"] == "request"] == [500]
 
 
+@pytest.mark.parametrize(("value", "logged"), [
+    (2**70, 2**70),                    # past 64 bits: the line still holds it exactly
+    (Path("/srv/queue"), "/srv/queue"),  # not a JSON value at all: written as its str
+    ({3: "three"}, {"3": "three"}),    # a key that is not a string, as JSON must write it
+])
+def test_any_event_value_makes_one_json_line(log_lines, value, logged):
+    logging.getLogger("certimatch").info("odd", extra={"event": {"field": value}})
+    (record,) = _records(log_lines)
+    assert (record["message"], record["field"]) == ("odd", logged)
+
+
 def test_configure_logging_twice_keeps_one_handler(log_lines):
     observe.configure_logging("warning", log_lines)
     for name in observe.LOGGERS:
@@ -279,6 +290,23 @@ def test_verifications_are_counted_by_verdict(client):
     client.post("/v1/verify", json={**PROBLEM, "answer": answer})
     assert _sample("certimatch_verifications_total", valid="true") == good + 1
     assert _sample("certimatch_verifications_total", valid="false") == bad + 1
+
+
+def test_each_route_method_and_status_is_counted_apart(client):
+    # The same label values, again and interleaved with others, reach the same series.
+    # (A 405 matched no rule: it is counted under "unmatched", as a 404 is.)
+    series = [("/v1/solve", "POST", "200"), ("/v1/solve", "POST", "422"),
+              ("unmatched", "GET", "405"), ("/healthz", "GET", "200")]
+    before = [_sample("certimatch_http_requests_total", route=r, method=m, status=s)
+              for r, m, s in series]
+    for _ in range(2):
+        assert client.post("/v1/solve", json=PROBLEM).status_code == 200
+        assert client.post("/v1/solve", json={"sources": []}).status_code == 422
+        assert client.get("/healthz").status_code == 200
+    assert client.get("/v1/solve").status_code == 405
+    after = [_sample("certimatch_http_requests_total", route=r, method=m, status=s)
+             for r, m, s in series]
+    assert [a - b for a, b in zip(after, before, strict=True)] == [2, 2, 1, 2]
 
 
 def test_unmatched_paths_share_one_label(client):

@@ -320,6 +320,30 @@ def test_a_wrong_row_cost_is_caught(lsa, verify):
     assert failed(checked(verify, LSA, t)) == {"allocation_costs"}
 
 
+def test_a_sink_listed_twice_as_unmet_is_caught(short, verify):
+    t = copy.deepcopy(short)
+    assert t["unmet"], "SHORT leaves hard demand unmet"
+    t["unmet"].append(copy.deepcopy(t["unmet"][0]))
+    result = checked(verify, SHORT, t)
+    assert "unmet" in failed(result)
+    assert "more than once" in detail(result, "unmet")
+
+
+def test_row_costs_are_held_to_the_fractional_tolerance_row_by_row(solve, verify):
+    # Costs with decimals are kept to 10**-6 (README, "Numbers"): a row's cost may differ
+    # from flow x cost by float noise, not by one step of that grid; 'cost' is optional.
+    problem = {**LSA, "costs": [[c + 0.25 for c in r] for r in LSA_COSTS]}
+    t = copy.deepcopy(solved(solve, problem))
+    last = len(t["allocation"]) - 1
+    t["allocation"][last]["cost"] *= 1 + 1e-12
+    del t["allocation"][0]["cost"]
+    assert checked(verify, problem, t)["valid"] is True
+    t["allocation"][last]["cost"] += 1e-6
+    result = checked(verify, problem, t)
+    assert failed(result) == {"allocation_costs"}
+    assert detail(result, "allocation_costs").startswith(f"allocation row {last}: ")
+
+
 def test_wrong_unmet_and_unused_are_caught(short, verify):
     t = copy.deepcopy(short)
     t["unmet"] = [{"id": "Y", "amount": 2}]
