@@ -11,8 +11,10 @@ import shutil
 import subprocess
 import sys
 import tomllib
+import weakref
 from dataclasses import fields
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -311,3 +313,31 @@ def test_home_page_never_echoes_markup_from_the_host_header(client):
     response = client.get("/", headers={"Host": "x<i>'y"})
     assert response.status_code == 200
     assert "<i>" not in response.get_data(as_text=True)
+
+
+class _Body(dict):
+    """A parsed body that can be watched with a weak reference (a plain dict cannot)."""
+
+
+@pytest.mark.parametrize("path", ["/v1/solve", "/v1/verify"])
+def test_the_parsed_body_is_freed_once_the_answer_is_sent(client, monkeypatch, path):
+    from service import api
+
+    problem = {"sources": [{"id": "a"}], "sinks": [{"id": "b"}], "costs": [[3]]}
+    body = problem
+    if path == "/v1/verify":
+        body = {**problem, "answer": client.post("/v1/solve", json=problem).get_json()}
+    watched: list[weakref.ref] = []
+    real = api.json_body
+
+    def watched_body() -> Any:
+        parsed = _Body(real())
+        watched.append(weakref.ref(parsed))
+        return parsed
+
+    monkeypatch.setattr(api, "json_body", watched_body)
+    response = client.post(path, json=body, buffered=False)
+    assert response.status_code == 200
+    assert watched[0]() is not None      # still held while the answer is being sent
+    response.close()
+    assert watched[0]() is None          # and let go when the server closes the answer
