@@ -268,15 +268,7 @@ def _solves() -> dict[tuple[str, ...], float]:
             if s.name.endswith("_total")}
 
 
-def test_a_certificate_failure_is_counted(client, monkeypatch):
-    build = service.pipeline.build_answer
-
-    def off_by_one(*args: Any, **kwargs: Any) -> dict[str, Any]:
-        answer = build(*args, **kwargs)
-        answer["objective"] += 1
-        return answer
-
-    monkeypatch.setattr(service.pipeline, "build_answer", off_by_one)
+def test_a_certificate_failure_is_counted(client, objective_off_by_one):
     before = _sample("certimatch_certificate_failures_total")
     assert client.post("/v1/solve", json=PROBLEM).status_code == 500
     assert _sample("certimatch_certificate_failures_total") == before + 1

@@ -632,17 +632,8 @@ def test_wrong_method_is_405_with_allow(client: Any, path: str) -> None:
            "application~1problem+json/schema")
 
 
-def test_certificate_failure_is_500_with_checks(client: Any,
-                                                monkeypatch: pytest.MonkeyPatch) -> None:
-    # Simulates a bug after solving: the self-check must catch it and answer as documented.
-    build = service.pipeline.build_answer
-
-    def off_by_one(*args: Any, **kwargs: Any) -> dict[str, Any]:
-        answer = build(*args, **kwargs)
-        answer["objective"] += 1
-        return answer
-
-    monkeypatch.setattr(service.pipeline, "build_answer", off_by_one)
+def test_certificate_failure_is_500_with_checks(client: Any, objective_off_by_one: None) -> None:
+    # A bug after solving: the self-check must catch it and answer as documented.
     doc = _check_error(client.post("/v1/solve", json=TECHNICIANS), "/v1/solve", "post", 500)
     assert doc["type"] == PROBLEM_TYPE + "certificate-failure"
     assert [c["name"] for c in doc["checks"]] == ["objective"]
