@@ -3,6 +3,7 @@ polls, and what the service says about itself (its OpenAPI document and the page
 
 from __future__ import annotations
 
+import gc
 import html
 import json
 import re
@@ -320,7 +321,8 @@ class _Body(dict):
 
 
 @pytest.mark.parametrize("path", ["/v1/solve", "/v1/verify"])
-def test_the_parsed_body_is_freed_once_the_answer_is_sent(client, monkeypatch, path):
+def test_the_parsed_body_and_the_collector_wait_until_the_answer_is_sent(client, monkeypatch,
+                                                                          path):
     from service import api
 
     problem = {"sources": [{"id": "a"}], "sinks": [{"id": "b"}], "costs": [[3]]}
@@ -336,8 +338,20 @@ def test_the_parsed_body_is_freed_once_the_answer_is_sent(client, monkeypatch, p
         return parsed
 
     monkeypatch.setattr(api, "json_body", watched_body)
+    assert gc.isenabled()
     response = client.post(path, json=body, buffered=False)
     assert response.status_code == 200
-    assert watched[0]() is not None      # still held while the answer is being sent
+    assert watched[0]() is not None      # still held while the answer is being sent,
+    assert not gc.isenabled()            # with the collector still off
     response.close()
-    assert watched[0]() is None          # and let go when the server closes the answer
+    assert watched[0]() is None          # and let go when the server closes the answer,
+    assert gc.isenabled()                # the collector back on
+
+
+def test_a_failed_request_lets_the_body_and_the_collector_go_at_once(client):
+    # An error answer is not held: the collector is back on before it is sent.
+    assert gc.isenabled()
+    response = client.post("/v1/solve", json={"sources": "none"}, buffered=False)
+    assert response.status_code == 422
+    assert gc.isenabled()
+    response.close()
