@@ -228,20 +228,19 @@ def test_the_app_alone_adds_no_log_handler():
 
 def test_a_solve_is_counted_by_shape_and_solver(client):
     labels = {"shape": "transportation", "solver": "min_cost_flow"}
-    before = (_sample("certimatch_solves_total", **labels),
-              _sample("certimatch_solve_duration_seconds_count", **labels),
-              _sample("certimatch_problem_size_count", measure="cells"),
-              _sample("certimatch_problem_size_sum", measure="cells"),
-              _sample("certimatch_http_requests_total", route="/v1/solve", method="POST",
-                      status="200"))
+
+    def read() -> tuple[float, ...]:
+        return (_sample("certimatch_solves_total", **labels),
+                _sample("certimatch_solve_duration_seconds_count", **labels),
+                _sample("certimatch_problem_size_count", measure="cells"),
+                _sample("certimatch_problem_size_sum", measure="cells"),
+                _sample("certimatch_http_requests_total", route="/v1/solve", method="POST",
+                        status="200"))
+
+    before = read()
     answer = client.post("/v1/solve", json=PROBLEM).get_json()
     assert (answer["shape"], answer["solver"]) == (labels["shape"], labels["solver"])
-    after = (_sample("certimatch_solves_total", **labels),
-             _sample("certimatch_solve_duration_seconds_count", **labels),
-             _sample("certimatch_problem_size_count", measure="cells"),
-             _sample("certimatch_problem_size_sum", measure="cells"),
-             _sample("certimatch_http_requests_total", route="/v1/solve", method="POST",
-                     status="200"))
+    after = read()
     # One solve, one timing, one size of 2 x 3 cells, one 200.
     assert [a - b for a, b in zip(after, before, strict=True)] == [1, 1, 1, 6, 1]
 
