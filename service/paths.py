@@ -105,12 +105,11 @@ def bellman_ford(n: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, *
     rounds = n + 1 if max_rounds is None else max_rounds
     for _ in range(rounds):
         if len(active) == 0:
-            return ShortestPaths(dist, pred, True, empty)
+            break
         improved = scan(active)
         active = _distinct(np.concatenate(improved), slot) if improved else empty
-    if len(active) == 0:
-        return ShortestPaths(dist, pred, True, empty)
-    return ShortestPaths(dist, pred, False, active)
+    converged = len(active) == 0
+    return ShortestPaths(dist, pred, converged, empty if converged else active)
 
 
 #: Smallest-first batches: this share of the pending nodes, and at least this many or
