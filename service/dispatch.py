@@ -79,8 +79,7 @@ def solve(net: Network) -> Solution:
     # is met and stage 1 has nothing to prove (saves a maximum flow in the common case).
     met = min_cost_flow.solve(net, 0)
     if met is not None:
-        return Solution(shape, min_cost_flow.NAME, met,
-                        Shortfall(0, np.zeros(net.n_user, bool)))
+        return Solution(shape, min_cost_flow.NAME, met, Shortfall.none(net))
     shortfall = least_shortfall(net)
     reject_if_short(net, shortfall)
     flow = min_cost_flow.solve(net, shortfall.amount)

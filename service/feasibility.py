@@ -30,6 +30,11 @@ class Shortfall:
     amount: int
     sink_side: np.ndarray    # bool per user node
 
+    @classmethod
+    def none(cls, net: Network) -> Shortfall:
+        """Every hard demand met: nothing short, an empty sink side."""
+        return cls(0, np.zeros(net.n_user, bool))
+
 
 def check_bounded(net: Network) -> None:
     """Raise Unbounded naming a negative-cost cycle made only of unbounded arcs."""
@@ -75,7 +80,7 @@ def least_shortfall(net: Network) -> Shortfall:
     hard = np.flatnonzero(~net.soft)
     hard_demand = net.hard_demand
     if hard_demand == 0:
-        return Shortfall(0, np.zeros(net.n_user, bool))
+        return Shortfall.none(net)
     n = net.n_user
     S, T = n, n + 1
     off = net.sink_offset
