@@ -109,7 +109,7 @@ worker_tmp_dir = "/dev/shm" if os.access("/dev/shm", os.W_OK) else None
 control_socket_disable = True
 loglevel = _server.log_level
 errorlog = "-"
-# The app writes one JSON line per request itself (service/observe.py), with the request
+# The app writes one JSON line per request itself (service/http/observe.py), with the request
 # id; gunicorn's access log would repeat it, so it is off unless CERTIMATCH_ACCESS_LOG is
 # true, and then it is JSON too (JsonLogger.access below).
 accesslog = "-" if _server.access_log else None
@@ -120,7 +120,7 @@ class JsonLogger(glogging.Logger):  # type: ignore[misc]
 
     def setup(self, cfg: Any) -> None:
         super().setup(cfg)
-        from service.observe import JsonFormatter  # imports no prometheus_client
+        from service.http.observe import JsonFormatter  # imports no prometheus_client
 
         for logger in (self.error_log, self.access_log):
             for handler in logger.handlers:
@@ -156,7 +156,7 @@ def on_starting(server: Any) -> None:
     """In the master, before any worker: the exposure check, metrics directory, logging."""
     # Checked here, not at import: server.cfg.bind includes a --bind given on the command
     # line, which overrides CERTIMATCH_BIND.
-    from service.auth import check_exposure, load_tokens
+    from service.http.auth import check_exposure, load_tokens
 
     try:
         warning = check_exposure(server.cfg.bind, load_tokens(load_settings()),
@@ -176,7 +176,7 @@ def on_starting(server: Any) -> None:
                 stale.unlink(missing_ok=True)
     else:
         os.environ["PROMETHEUS_MULTIPROC_DIR"] = tempfile.mkdtemp(prefix=_OWN_DIR_PREFIX)
-    from service.observe import configure_logging
+    from service.http.observe import configure_logging
 
     configure_logging(_server.log_level)
     # prometheus_client picks its multiprocess mode when first imported, so only now, with
@@ -186,7 +186,7 @@ def on_starting(server: Any) -> None:
 
 
 def on_reload(server: Any) -> None:
-    from service.observe import configure_logging
+    from service.http.observe import configure_logging
 
     configure_logging(load_server_settings().log_level)
 

@@ -8,9 +8,11 @@ from schemas.answer import (
     VerifyRequestSchema,
     VerifyResultSchema,
 )
+from schemas.numbers import MAX_ABS_VALUE
+from schemas.pointers import to_pointers
 from schemas.problem import ProblemSchema
 from schemas.problem_document import ProblemDocumentSchema
-from schemas.tables import MAX_ABS_VALUE, Table, to_pointers
+from schemas.tables import Table
 
 __all__ = [
     "MAX_ABS_VALUE",

@@ -4,15 +4,10 @@ from __future__ import annotations
 
 from marshmallow import Schema, fields, validate
 
+from schemas.fields import IdList, Number, NumberMap, StrictBoolean
+from schemas.numbers import MAX_ANSWER_VALUE
 from schemas.problem import ProblemSchema
-from schemas.tables import (
-    MAX_ANSWER_VALUE,
-    IdList,
-    Number,
-    NumberMap,
-    RecordList,
-    StrictBoolean,
-)
+from schemas.tables import RecordList
 
 SHAPES = ("assignment", "transportation", "transshipment")
 SOLVERS = ("linear_sum_assignment", "min_weight_full_bipartite_matching", "min_cost_flow")

@@ -7,7 +7,8 @@ from typing import Any
 
 from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
 
-from schemas.tables import CostMatrix, Number, RecordList
+from schemas.fields import Number
+from schemas.tables import CostMatrix, RecordList
 
 OBJECTIVES = ("min", "max")
 UNMET_POLICIES = ("minimize", "reject")

@@ -9,10 +9,12 @@ from typing import Any
 from flask import Flask
 from werkzeug.exceptions import HTTPException
 
-from service import auth, observe
-from service.api import bp, json_response
 from service.errors import PROBLEM_CONTENT_TYPE, ServiceError, problem_document
-from service.report_api import report_bp
+from service.http import auth, observe
+from service.http.api import api_bp
+from service.http.body import json_response
+from service.http.pages import pages_bp
+from service.http.reports import report_bp
 from service.settings import load_settings
 
 log = logging.getLogger(__name__)
@@ -32,7 +34,8 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         app.config.update({k: v for k, v in config.items() if k.isupper()})
     app.extensions["certimatch.settings"] = settings
     auth.init_app(app, settings)
-    app.register_blueprint(bp)
+    app.register_blueprint(api_bp)
+    app.register_blueprint(pages_bp)
     app.register_blueprint(report_bp)
     # Request ids, the request log line and metrics wrap every view, errors included.
     observe.init_app(app, settings.metrics_enabled)

@@ -58,13 +58,13 @@ def verify(client) -> Callable[[dict[str, Any], dict[str, Any]], Reply]:
 def objective_off_by_one(monkeypatch: pytest.MonkeyPatch) -> None:
     """A bug after solving, simulated: every answer built reports its objective plus one,
     which the self-check must catch (a certificate failure, 500)."""
-    import service.pipeline
+    import service.solve.pipeline
 
-    build = service.pipeline.build_answer
+    build = service.solve.pipeline.build_answer
 
     def off_by_one(*args: Any, **kwargs: Any) -> dict[str, Any]:
         answer = build(*args, **kwargs)
         answer["objective"] += 1
         return answer
 
-    monkeypatch.setattr(service.pipeline, "build_answer", off_by_one)
+    monkeypatch.setattr(service.solve.pipeline, "build_answer", off_by_one)

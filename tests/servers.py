@@ -27,11 +27,11 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import IO, Any
 
-import pytest
 import requests
 
 ROOT = Path(__file__).resolve().parents[1]
 CONFIG = ROOT / "deploy" / "gunicorn.conf.py"
+APP = "service.app:create_app()"
 
 START_SECONDS = 30.0   # bound on a server coming up with all its workers
 STOP_SECONDS = 45.0    # bound on a graceful stop (the deploy graceful_timeout is 30 s)
@@ -59,6 +59,10 @@ def clean_app(config: Mapping[str, Any] | None = None) -> Any:
         os.environ.update(saved)
 
 
+class ServerFailed(AssertionError):
+    """A server did not come up, or did not go down, within its bound (fails the test)."""
+
+
 def free_port() -> int:
     """A loopback port nobody listens on right now."""
     with socket.socket() as s:
@@ -76,7 +80,7 @@ def wait_for(what: str, condition: Callable[[], Any], seconds: float,
         if value:
             return value
         if time.monotonic() >= deadline:
-            pytest.fail(f"{what}: not within {seconds} s\n{context()}")
+            raise ServerFailed(f"{what}: not within {seconds} s\n{context()}")
         time.sleep(POLL_SECONDS)
 
 
@@ -113,25 +117,48 @@ class Gunicorn:
     """``gunicorn -c deploy/gunicorn.conf.py 'service.app:create_app()'`` on a free port.
 
     ``env`` adds ``CERTIMATCH_*`` settings (``MAX_BODY_BYTES``...) for the app and its
-    workers. Use as a context manager, or call :meth:`start` and :meth:`stop` yourself.
+    workers. ``app`` serves another application (the benchmark's hello-world), found on
+    ``pythonpath``; ``command`` starts the server another way that must end up as this
+    gunicorn on :attr:`port` (``certimatch serve --port ...``): it is called with the port
+    and returns the argv. ``health`` is the path polled until it answers 200. Use as a
+    context manager, or call :meth:`start` and :meth:`stop` yourself.
     """
 
     def __init__(self, folder: Path, *, workers: int = 2,
-                 env: Mapping[str, str] | None = None) -> None:
+                 env: Mapping[str, str] | None = None, app: str = APP,
+                 pythonpath: str | None = None,
+                 command: Callable[[int], list[str]] | None = None,
+                 health: str = "/healthz", log_name: str = "gunicorn.log") -> None:
         self.port = free_port()
         self.base = f"http://127.0.0.1:{self.port}"
         self.workers = workers
         self.folder = folder
         self.extra_env = dict(env or {})
+        self.app = app
+        self.pythonpath = pythonpath
+        self.command = command
+        self.health = health
+        self.log_path = folder / log_name
         self.proc: subprocess.Popen[bytes] | None = None
         self._log: IO[bytes] | None = None
 
     # -- life cycle ----------------------------------------------------------------------
 
-    def start(self) -> Gunicorn:
-        runtime = self.folder / "runtime"
+    def argv(self) -> list[str]:
+        """The command line this server is started with."""
+        if self.command is not None:
+            return self.command(self.port)
+        argv = [sys.executable, "-m", "gunicorn", "-c", str(CONFIG)]
+        if self.pythonpath:
+            argv += ["--pythonpath", self.pythonpath]
+        return [*argv, self.app]
+
+    def launch(self) -> Gunicorn:
+        """Start the process and return at once, without waiting for it to serve."""
+        runtime = self.folder / f"runtime-{self.port}"
         runtime.mkdir(parents=True, exist_ok=True)
-        env = {k: v for k, v in os.environ.items() if not k.startswith("CERTIMATCH_")}
+        env = {k: v for k, v in os.environ.items()
+               if not k.startswith("CERTIMATCH_") and k != "PROMETHEUS_MULTIPROC_DIR"}
         env.update({
             # Each server its own runtime folder: gunicorn >= 25.1 puts its control
             # socket there, and two servers sharing one would delete each other's.
@@ -140,11 +167,15 @@ class Gunicorn:
             "CERTIMATCH_WORKERS": str(self.workers),
             **self.extra_env,
         })
-        self._log = open(self.folder / "gunicorn.log", "w+b")  # closed in stop()
-        argv = [sys.executable, "-m", "gunicorn", "-c", str(CONFIG), "service.app:create_app()"]
+        self._log = open(self.log_path, "w+b")  # closed in stop()
         # A session of its own: one killpg ends master and workers if a graceful stop hangs.
-        self.proc = subprocess.Popen(argv, cwd=ROOT, env=env, stdout=self._log,
+        self.proc = subprocess.Popen(self.argv(), cwd=ROOT, env=env, stdout=self._log,
                                      stderr=subprocess.STDOUT, start_new_session=True)
+        return self
+
+    def start(self) -> Gunicorn:
+        """Start, and wait (bounded) until it serves with all its workers."""
+        self.launch()
         try:
             self.wait_ready()
         except BaseException:
@@ -153,16 +184,27 @@ class Gunicorn:
         return self
 
     def wait_ready(self) -> None:
-        """Bounded wait until /healthz answers and every worker has booted."""
+        """Bounded wait until the health path answers and every worker has booted."""
         def ready() -> bool:
             self._check_running()
             if len(self.worker_pids()) != self.workers:
                 return False
             try:
-                return requests.get(self.base + "/healthz", timeout=2).status_code == 200
+                return requests.get(self.base + self.health, timeout=2).status_code == 200
             except requests.RequestException:
                 return False
-        wait_for("gunicorn serving with all its workers", ready, START_SECONDS, self.output)
+        wait_for(f"{self.argv()[-1]} serving with all its workers", ready, START_SECONDS,
+                 self.output)
+
+    def wait_exit(self, seconds: float) -> int:
+        """Bounded wait for the server to end by itself; its exit code."""
+        assert self.proc is not None, "server not started"
+        try:
+            return self.proc.wait(timeout=seconds)
+        except subprocess.TimeoutExpired:
+            self.stop()
+            raise ServerFailed(f"the server did not stop by itself within {seconds} s:\n"
+                               f"{self.output()}") from None
 
     def stop(self) -> int | None:
         """SIGTERM, a bounded wait, then SIGKILL to the whole group; the master's exit code."""
@@ -201,16 +243,19 @@ class Gunicorn:
         return {p for p in children(self.pid) if alive(p)}
 
     def output(self) -> str:
-        path = self.folder / "gunicorn.log"
-        if not path.exists():
+        if not self.log_path.exists():
             return ""
-        text = path.read_bytes().decode(errors="replace")
+        text = self.log_path.read_bytes().decode(errors="replace")
         return text[-20_000:]
+
+    def restarts(self) -> int:
+        """Workers booted so far, the first ones included (recycles show as more)."""
+        return self.output().count("Booting worker")
 
     def _check_running(self) -> None:
         assert self.proc is not None
         if self.proc.poll() is not None:
-            pytest.fail(f"gunicorn exited with {self.proc.returncode}:\n{self.output()}")
+            raise ServerFailed(f"gunicorn exited with {self.proc.returncode}:\n{self.output()}")
 
     def post(self, path: str, body: Any, session: requests.Session | None = None,
              timeout: float = 60) -> requests.Response:

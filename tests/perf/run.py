@@ -28,8 +28,6 @@ import platform
 import re
 import resource
 import shutil
-import signal
-import socket
 import statistics
 import subprocess
 import sys
@@ -41,11 +39,11 @@ from dataclasses import dataclass
 from itertools import chain, repeat
 from operator import itemgetter
 from pathlib import Path
-from typing import IO, Any
+from typing import Any
 
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parents[1]
-for _p in (str(ROOT), str(HERE)):
+for _p in (str(ROOT), str(HERE.parent), str(HERE)):
     if _p not in sys.path:
         sys.path.insert(0, _p)
 
@@ -53,10 +51,9 @@ import generators as gen  # noqa: E402
 import numpy as np  # noqa: E402
 import orjson  # noqa: E402
 import requests  # noqa: E402
+from servers import Gunicorn, ServerFailed  # noqa: E402
 
 JSON_HEADERS = {"Content-Type": "application/json"}
-START_SECONDS = 60.0      # bound on a server coming up
-STOP_SECONDS = 20.0       # bound on a graceful stop before SIGKILL
 HTTP_TIMEOUT = 600.0      # bound on one request (the worker's own timeout is lower)
 PROBE_TIMEOUT = 900.0     # bound on one memory/floor subprocess
 ALT_TIMEOUT = 240.0       # bound on one linprog / networkx subprocess
@@ -175,7 +172,7 @@ def _libs() -> None:
     import scipy.optimize  # noqa: F401
     import scipy.sparse.csgraph  # noqa: F401
 
-    import service.pipeline  # noqa: F401
+    import service.solve.pipeline  # noqa: F401
 
 
 @dataclass
@@ -367,7 +364,7 @@ def networkx_once(body: bytes) -> dict[str, Any]:
 
 def inprocess_once(body: bytes, settings: Any) -> tuple[dict[str, float], bytes]:
     """The service's phases on the same bytes, as a worker would run them."""
-    from service.pipeline import solve_body
+    from service.solve.pipeline import solve_body
 
     t: dict[str, float] = {}
     data, t["parse"] = _timed(orjson.loads, body)
@@ -391,8 +388,8 @@ def probe_main(mode: str, path: str, kind: str) -> None:
     out: dict[str, Any] = {"hwm_parse": vm_status("VmHWM"), "rss_parsed": vm_status("VmRSS")}
     reset = mode != "baseline" and reset_hwm()
     if mode == "service":
-        from service.pipeline import solve_body
         from service.settings import load_settings
+        from service.solve.pipeline import solve_body
 
         out["answer_bytes"] = len(orjson.dumps(solve_body(data, load_settings())))
     elif mode == "floor":
@@ -451,82 +448,25 @@ def run_probe(mode: str, path: Path, kind: str, timeout: float) -> dict[str, Any
 # --------------------------------------------------------------------------- servers
 
 
-def free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        port: int = s.getsockname()[1]
-    return port
-
-
-class Server:
-    """A gunicorn we started, in a session of its own so a hang goes down with one killpg."""
-
-    def __init__(self, app: str, health: str, folder: Path, extra_env: dict[str, str],
-                 pythonpath: str | None = None) -> None:
-        self.port = free_port()
-        self.base = f"http://127.0.0.1:{self.port}"
-        self.health = health
-        runtime = folder / f"runtime-{self.port}"
-        runtime.mkdir(parents=True)
-        self.log_path = folder / f"gunicorn-{self.port}.log"
-        self.log: IO[bytes] = open(self.log_path, "w+b")  # noqa: SIM115 - closed in stop()
-        env = {**os.environ, **extra_env,
-               # gunicorn >= 25.1 keeps a control socket under $XDG_RUNTIME_DIR: one
-               # folder per server keeps it away from a developer's own servers
-               "XDG_RUNTIME_DIR": str(runtime),
-               "CERTIMATCH_BIND": f"127.0.0.1:{self.port}", "CERTIMATCH_WORKERS": "2"}
-        argv = [sys.executable, "-m", "gunicorn", "-c", str(ROOT / "deploy" / "gunicorn.conf.py"),
-                "-b", f"127.0.0.1:{self.port}", "-w", "2"]
-        if pythonpath:
-            argv += ["--pythonpath", pythonpath]
-        self.proc = subprocess.Popen([*argv, app], cwd=ROOT, env=env, stdout=self.log,
-                                     stderr=subprocess.STDOUT, start_new_session=True)
-
-    def output_tail(self, lines: int = 20) -> str:
-        self.log.flush()
-        text = self.log_path.read_text(errors="replace").splitlines()
-        return "\n".join(text[-lines:])
-
-    def restarts(self) -> int:
-        """Workers recycled so far (gunicorn's max_requests), from the server's log."""
-        self.log.flush()
-        return self.log_path.read_text(errors="replace").count("Booting worker")
-
-    def wait_healthy(self) -> None:
-        deadline = time.monotonic() + START_SECONDS
-        while time.monotonic() < deadline:
-            if self.proc.poll() is not None:
-                raise BenchError(f"gunicorn exited with {self.proc.returncode}:\n"
-                                 f"{self.output_tail()}")
-            try:
-                if requests.get(self.base + self.health, timeout=2).status_code == 200:
-                    return
-            except requests.RequestException:
-                pass
-            time.sleep(0.2)
-        raise BenchError(f"no 200 from {self.health} within {START_SECONDS} s:\n"
-                         f"{self.output_tail()}")
-
-    def stop(self) -> None:
-        if self.proc.poll() is None:
-            self.proc.terminate()
-        try:
-            self.proc.wait(timeout=STOP_SECONDS)
-        except subprocess.TimeoutExpired:
-            os.killpg(self.proc.pid, signal.SIGKILL)
-            self.proc.wait(timeout=STOP_SECONDS)
-        self.log.close()
-
-
 @contextmanager
 def serving(app: str, health: str, folder: Path, extra_env: dict[str, str],
-            pythonpath: str | None = None) -> Iterator[Server]:
-    srv = Server(app, health, folder, extra_env, pythonpath)
+            pythonpath: str | None = None) -> Iterator[Gunicorn]:
+    """A gunicorn with the deploy configuration and 2 workers (tests/servers.py), serving."""
+    name = app.split(":")[0].replace(".", "-")
+    srv = Gunicorn(folder, workers=2, env=extra_env, app=app, pythonpath=pythonpath,
+                   health=health, log_name=f"gunicorn-{name}.log")
     try:
-        srv.wait_healthy()
+        srv.start()
+    except ServerFailed as e:
+        raise BenchError(str(e)) from None
+    try:
         yield srv
     finally:
         srv.stop()
+
+
+def _tail(text: str, lines: int) -> str:
+    return "\n".join(text.splitlines()[-lines:])
 
 
 def hello_app() -> Any:
@@ -576,7 +516,7 @@ def _repeats(first_e2e: float, override: int | None) -> tuple[int, int]:
     return 2, 0              # the largest sizes: keeps the full run within ~25 minutes
 
 
-def measure(inst: Instance, srv: Server, folder: Path, override: int | None) -> dict[str, Any]:
+def measure(inst: Instance, srv: Gunicorn, folder: Path, override: int | None) -> dict[str, Any]:
     from service.settings import load_settings
 
     settings = load_settings()
@@ -731,7 +671,7 @@ def _start_cost(code: str) -> float:
     return statistics.median(times)
 
 
-def throughput(srv: Server, folder: Path, env: dict[str, str]) -> dict[str, Any]:
+def throughput(srv: Gunicorn, folder: Path, env: dict[str, str]) -> dict[str, Any]:
     """A 10 x 10 solve against a hello-world route, alternating, WRK_ROUNDS each."""
     if not shutil.which("wrk"):
         return {"error": "wrk not installed (apt-get install -y wrk)"}
@@ -765,7 +705,7 @@ def throughput(srv: Server, folder: Path, env: dict[str, str]) -> dict[str, Any]
                     state = ("running" if server.proc.poll() is None
                              else f"exited with {server.proc.returncode}")
                     out["errors"].append(f"{name}: {e} (gunicorn {state}; log tail: "
-                                         f"{server.output_tail(3)!r})")
+                                         f"{_tail(server.output(), 3)!r})")
                     log(out["errors"][-1])
             if srv.proc.poll() is not None or hello.proc.poll() is not None:
                 break

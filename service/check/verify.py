@@ -1,0 +1,177 @@
+"""The independent checker: is this answer an optimal solution of this problem?
+
+It reads the problem and the answer only, shares no code with the engines or the
+certifier, and follows the definitions (README, "The certificate"):
+
+* the allocation is a flow: allowed arcs, within capacity, conserved at nodes, within
+  supply at sources, within demand at sinks; unmet, unused and objective as reported;
+* the cut proves that no flow leaves less hard demand unmet (max-flow min-cut);
+* the potentials prove that no flow with that shortfall costs less: by weak duality
+  ``D (pi(S) - pi(T)) - sum_a u_a max(0, -c^pi_a)`` is a lower bound on every flow's cost
+  when no unbounded arc has a negative reduced cost, and here it equals the cost.
+
+All arithmetic is exact on integers (costs scaled as in the network model); a reported
+fractional value is compared after scaling with the relative tolerance FLOAT_TOLERANCE.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from service.check.checks import _Checks, _result
+from service.check.duals import (
+    _bounded_below_capacity,
+    _bounded_dual_term,
+    _cut_differs,
+    _unbounded_negative,
+    _virtual_arcs,
+)
+from service.check.exact import FLOAT_TOLERANCE, _close, _dot, _first, _ids_to_index, _to_grid
+from service.check.flows import _allocation, _amounts_differ
+from service.network.model import Network
+
+__all__ = ["FLOAT_TOLERANCE", "verify_answer"]
+
+
+_VIRTUAL = ("super_source", "super_sink", "hard_pool")
+
+
+def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
+    """Check ``answer`` (loaded by AnswerSchema) against ``net``; ``{"valid", "checks"}``."""
+    checks = _Checks()
+    ids = net.ids
+    index = dict(zip(ids, range(len(ids)), strict=True))
+    scale = net.cost_scale
+    cert = answer["certificate"]
+    checks.add("sense", None if cert["negated"] == net.maximize else
+               f"negated is {cert['negated']} but the objective is "
+               f"{'max' if net.maximize else 'min'}",
+               "certificate is for the min form" + (" with costs negated" if net.maximize
+                                                    else ""))
+
+    used = _allocation(net, answer["allocation"], index, checks)
+    if used is None:
+        checks.skip(["capacity", "conservation", "supply", "demand", "unused", "unmet",
+                     "objective", "hard_shortfall", "shortfall_cut", "potentials",
+                     "dual_feasibility", "complementary_slackness", "dual_objective"],
+                    "the allocation does not name allowed arcs")
+        return _result(checks)
+    arc, x = used
+    tail, head = net.endpoints(arc)
+    cost = net.arc_cost(arc)
+
+    # -- primal feasibility -------------------------------------------------------------
+    cap, bounded = net.arc_bound(arc)
+    over = _first(bounded & (x > cap))
+    checks.add("capacity", None if over is None else
+               f"arc {ids[tail[over]]} -> {ids[head[over]]} carries {x[over]} "
+               f"over its capacity {cap[over]}", "every arc within its capacity")
+    net_out = np.zeros(net.n_user, np.int64)
+    np.add.at(net_out, tail, x)
+    np.subtract.at(net_out, head, x)
+    off = net.sink_offset
+    sent = net_out[: net.n_sources]
+    through = net_out[net.n_sources: off]
+    received = -net_out[off:]
+    leak = _first(through != 0)
+    checks.add("conservation", None if leak is None else
+               f"node {ids[net.n_sources + leak]} has net outflow {through[leak]}",
+               "what enters each node leaves it")
+    bad = _first((sent < 0) | (sent > net.supply))
+    checks.add("supply", None if bad is None else
+               f"source {ids[bad]} sends {sent[bad]}, allowed 0 to {net.supply[bad]}",
+               "each source sends between 0 and its supply")
+    bad = _first((received < 0) | (received > net.demand))
+    checks.add("demand", None if bad is None else
+               f"sink {ids[off + bad]} receives {received[bad]}, allowed 0 to "
+               f"{net.demand[bad]}", "each sink receives between 0 and its demand")
+    unused = net.supply - sent
+    unmet = net.demand - received
+    checks.add("unused", _amounts_differ(answer["unused"], unused, ids, index, 0,
+                                         net.n_sources, "source"),
+               "unused supply as reported")
+    checks.add("unmet", _amounts_differ(answer["unmet"], unmet, ids, index, off,
+                                        net.n_sinks, "sink"),
+               "unmet demand as reported")
+    if "flow_value" in answer:
+        routed = int(sent.sum())
+        checks.add("flow_value", None if answer["flow_value"] == routed else
+                   f"flow_value is {answer['flow_value']}, the allocation routes {routed}",
+                   "flow_value as routed")
+    primal = _dot(cost, x) + _dot(net.penalty[net.soft], unmet[net.soft])
+    sign = net.sign
+    checks.add("objective", None if bool(_close(answer["objective"], sign * primal, scale)) else
+               f"objective is {answer['objective']}, recomputed {sign * primal / scale:g}",
+               f"objective recomputed: {sign * primal / scale:g}")
+
+    # -- least hard shortfall: the cut --------------------------------------------------
+    shortfall = cert["hard_shortfall"]
+    hard_unmet = int(unmet[~net.soft].sum())
+    checks.add("hard_shortfall", None if hard_unmet == shortfall else
+               f"hard demand left unmet is {hard_unmet}, the certificate says {shortfall}",
+               f"{shortfall} units of hard demand unmet")
+    checks.add("shortfall_cut", _cut_differs(net, cert["cut"], index, shortfall),
+               f"no flow can leave less than {shortfall} units of hard demand unmet")
+
+    # -- least cost: the potentials -----------------------------------------------------
+    keys, values = cert["potentials"]
+    where = _ids_to_index(keys, index)
+    vp = cert["virtual_potentials"]
+    grid = _to_grid(np.append(values, [vp[name] for name in _VIRTUAL]), scale)
+    missing = [i for i in ids if i not in set(keys)] if len(set(keys)) != len(ids) else []
+    if (where < 0).any() or missing or grid is None:
+        checks.add("potentials", f"potentials missing for {missing[:5]}" if missing else
+                   f"potential for unknown id {keys[_first(where < 0) or 0]!r}"
+                   if (where < 0).any() else
+                   f"potentials must be multiples of {1 / scale:g} within 64-bit range", "")
+        checks.skip(["dual_feasibility", "complementary_slackness", "dual_objective"],
+                    "potentials incomplete")
+        return _result(checks)
+    checks.add("potentials", None, "one potential per source, sink and node")
+    S, T, P = net.n_user, net.n_user + 1, net.n_user + 2
+    pi = np.zeros(net.n_user + 3, np.int64)
+    pi[where] = grid[: len(keys)]
+    pi[[S, T, P]] = grid[len(keys):]
+
+    # Virtual arcs, then user arcs: every arc is checked, whatever its representation.
+    v_tail, v_head, v_cost, v_cap, v_x = _virtual_arcs(net, unmet, sent, shortfall, S, T, P)
+    v_reduced = v_cost - pi[v_tail] + pi[v_head]
+    u_reduced = cost - pi[tail] + pi[head]
+    bad_dual_arc = _unbounded_negative(net, pi)
+    checks.add("dual_feasibility", None if bad_dual_arc is None else
+               f"unbounded arc {bad_dual_arc[0]} has negative reduced cost "
+               f"{bad_dual_arc[1] / scale:g}", "no unbounded arc has a negative reduced cost")
+    bad_v = _first(((v_reduced > 0) & (v_x > 0)) | ((v_reduced < 0) & (v_x < v_cap)))
+    bad_u = _first(u_reduced > 0)
+    saturated = _bounded_below_capacity(net, pi, arc, x)
+    if bad_v is not None:
+        labels = list(ids) + list(_VIRTUAL)
+        slack = (f"arc {labels[v_tail[bad_v]]} -> {labels[v_head[bad_v]]} has reduced cost "
+                 f"{v_reduced[bad_v] / scale:g} and flow {v_x[bad_v]} of capacity "
+                 f"{v_cap[bad_v]}")
+    elif bad_u is not None:
+        slack = (f"arc {ids[tail[bad_u]]} -> {ids[head[bad_u]]} has reduced cost "
+                 f"{u_reduced[bad_u] / scale:g} and flow {x[bad_u]}")
+    elif saturated is not None:
+        slack = f"arc {saturated} has negative reduced cost and is below its capacity"
+    else:
+        slack = None
+    checks.add("complementary_slackness", slack,
+               "positive reduced cost: no flow; negative: at capacity")
+    demand = net.total_demand
+    dual = (demand * int(pi[S] - pi[T]) - _dot(v_cap, np.maximum(0, -v_reduced))
+            - _bounded_dual_term(net, pi))
+    reported_dual = cert["dual_objective"]
+    if dual != primal:
+        bad_dual = f"dual objective {sign * dual / scale:g} differs from the cost " \
+                   f"{sign * primal / scale:g}"
+    elif not bool(_close(reported_dual, sign * dual, scale)):
+        bad_dual = f"dual_objective is {reported_dual}, recomputed {sign * dual / scale:g}"
+    else:
+        bad_dual = None
+    checks.add("dual_objective", bad_dual, "dual objective equals the objective")
+    return _result(checks)
+
+

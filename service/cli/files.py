@@ -1,0 +1,149 @@
+"""Reading problems (JSON or a CSV cost table), writing results whole, progress lines."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from service.cli.talk import CliError, Post, Reply, _read_input
+from service.cli.text import _size
+
+# --- progress, input and output ---------------------------------------------------------
+
+#: Bodies from this size on get progress lines without --progress: they take seconds.
+PROGRESS_BYTES = 1_000_000
+
+
+class _Progress:
+    """Lines on stderr about slow steps; stdout stays the result alone.
+
+    ``auto`` speaks for big bodies or when stderr is a terminal, so a cron job's log holds
+    the timings of long solves but a quick solve in a script stays silent.
+    """
+
+    def __init__(self, mode: str) -> None:
+        self.mode = mode
+        self.on = mode == "on"
+
+    def size(self, n_bytes: int) -> None:
+        if self.mode == "auto":
+            self.on = n_bytes >= PROGRESS_BYTES or sys.stderr.isatty()
+
+    def say(self, message: str) -> None:
+        if self.on:
+            print(f"certimatch: {message}", file=sys.stderr, flush=True)
+
+
+def _progress(args: argparse.Namespace) -> _Progress:
+    return _Progress("off" if args.quiet else "on" if args.progress else "auto")
+
+
+def _timed_post(post: Post, where: str | None, path: str, body: bytes,
+                progress: _Progress) -> Reply:
+    progress.say(f"posting {_size(len(body))} to {where}{path}" if where else
+                 f"sending {_size(len(body))} to {path} in this process")
+    started = time.monotonic()
+    reply = post(path, body)
+    progress.say(f"answered {reply.status} in {time.monotonic() - started:.1f} s")
+    return reply
+
+
+def _input_kind(args: argparse.Namespace) -> str:
+    if args.input:
+        return str(args.input)
+    return "csv" if args.file.lower().endswith(".csv") else "json"
+
+
+def _delimiter(text: str) -> str:
+    text = {"tab": "\t", "\\t": "\t"}.get(text, text)
+    if len(text) != 1:
+        raise argparse.ArgumentTypeError(f"must be one character (or 'tab'), got {text!r}")
+    return text
+
+
+def _overrides(args: argparse.Namespace) -> dict[str, str]:
+    found = {"objective": args.objective, "unmet_demand": args.unmet_demand}
+    return {k: v for k, v in found.items() if v is not None}
+
+
+def _reject_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not a JSON number")
+
+
+def _parse_json(raw: bytes) -> Any:
+    """Strict JSON like the service's: no NaN or Infinity."""
+    return json.loads(raw, parse_constant=_reject_constant)
+
+
+@dataclass
+class _Problem:
+    """What ``solve`` sends: the body, and the problem as a dict when it could be read."""
+
+    body: bytes
+    problem: dict[str, Any] | None
+    note: str = ""
+
+
+def _load_problem(args: argparse.Namespace, need_dict: bool) -> _Problem:
+    raw = _read_input(args.file)
+    overrides = _overrides(args)
+    if _input_kind(args) == "csv":
+        from service.cli.tables import TableError, TableLayout, read_cost_table
+
+        try:
+            text = raw.decode("utf-8-sig")   # spreadsheets' "CSV UTF-8" starts with a BOM
+        except UnicodeDecodeError as e:
+            raise CliError(f"{args.file} is not UTF-8 text ({e.reason} at byte {e.start}); "
+                           "save the sheet as CSV in UTF-8") from None
+        layout = TableLayout(args.supply_column, args.demand_row, args.penalty_row,
+                             args.delimiter)
+        try:
+            table = read_cost_table(text, layout)
+        except TableError as e:
+            raise CliError(f"{args.file}: {e}") from None
+        problem = {**table.problem, **overrides}
+        rows, cols = table.shape
+        note = (f"read {args.file}: {rows} sources x {cols} sinks, {table.allowed} of "
+                f"{rows * cols} pairs allowed")
+        return _Problem(json.dumps(problem, separators=(",", ":")).encode(), problem, note)
+    if not overrides and not need_dict:
+        return _Problem(raw, None)
+    try:
+        parsed = _parse_json(raw)
+    except ValueError:
+        parsed = None
+    if not isinstance(parsed, dict):
+        # Sent as it is: the service's 400 or 422 says what is wrong, as it would over HTTP.
+        return _Problem(raw, None)
+    if not overrides:
+        return _Problem(raw, parsed)
+    parsed.update(overrides)
+    return _Problem(json.dumps(parsed, separators=(",", ":")).encode(), parsed)
+
+
+def _write_output(text: str, output: str | None) -> None:
+    """Write to stdout, or to ``output`` whole or not at all.
+
+    A cron job may pick the file up at any moment, so it is written beside its final name
+    and renamed into place: a reader sees the old file or the new one, never half of one.
+    """
+    if not text.endswith("\n"):
+        text += "\n"
+    if output is None or output == "-":
+        sys.stdout.write(text)
+        sys.stdout.flush()
+        return
+    target = Path(output)
+    temporary = target.with_name(f".{target.name}.{os.getpid()}.tmp")
+    try:
+        temporary.write_text(text, encoding="utf-8")
+        os.replace(temporary, target)
+    except OSError as e:
+        temporary.unlink(missing_ok=True)
+        raise CliError(f"cannot write {output}: {e.strerror or e}") from e

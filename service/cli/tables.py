@@ -1,0 +1,208 @@
+"""CSV in and out for the command line: a cost table becomes a problem, an answer a sheet.
+
+The cost table is the shape a spreadsheet already has::
+
+    ,ticket-1,ticket-2,ticket-3,supply
+    tech-a,10,25,,2
+    tech-b,12,,15,1
+    demand,1,2,1,
+    penalty,,,30,
+
+* the header row names the sinks (its first cell, the corner, is ignored);
+* every other row starts with a source id followed by one cost per sink; an empty cell
+  means the pair is not allowed (``null`` in the JSON wire format);
+* optional: a column named ``supply`` (each source's supply), a row named ``demand`` (each
+  sink's demand) and a row named ``penalty`` (cost of each unmet unit; empty = hard demand).
+  Without them every supply and demand is 1 and every demand is hard. The names can be
+  changed, or the feature turned off with an empty name, when a real id collides with them.
+
+Nothing here touches the network model: the result is an ordinary JSON problem that the
+service checks like any other, so the CSV path cannot accept what the JSON path refuses.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+from service.report.style import format_number
+
+ALLOCATION_COLUMNS = ("from", "to", "flow", "cost")
+
+#: First characters that make a spreadsheet read a cell as a formula (OWASP, "CSV
+#: Injection"); ids come from whoever filed the ticket, so they are defused on the way out.
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+class TableError(ValueError):
+    """A cost table that cannot be read; the message names the line and the column."""
+
+
+@dataclass(frozen=True)
+class TableLayout:
+    """Which header cells and row labels are not sinks and sources; "" turns one off."""
+
+    supply_column: str = "supply"
+    demand_row: str = "demand"
+    penalty_row: str = "penalty"
+    delimiter: str = ","
+
+
+@dataclass
+class CostTable:
+    """A problem read from CSV, with the counts the progress line reports."""
+
+    problem: dict[str, Any]
+    allowed: int = 0
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return len(self.problem["sources"]), len(self.problem["sinks"])
+
+
+def spreadsheet_text(text: str) -> str:
+    """``text`` for a spreadsheet cell, with a formula-like start defused by a quote."""
+    return "'" + text if text.startswith(_FORMULA_START) else text
+
+
+def _where(line: int, column: int) -> str:
+    return f"line {line}, column {column}"
+
+
+def _number(text: str, line: int, column: int) -> int | float:
+    try:
+        return int(text)
+    except ValueError:
+        pass
+    try:
+        value = float(text)
+    except ValueError:
+        hint = "; write decimals with a dot" if "," in text else ""
+        raise TableError(f"{_where(line, column)}: {text!r} is not a number{hint}") from None
+    if not math.isfinite(value):
+        raise TableError(f"{_where(line, column)}: {text!r} is not a finite number")
+    return value
+
+
+def _count(text: str, line: int, column: int, what: str) -> int:
+    value = _number(text, line, column)
+    if value < 0 or (isinstance(value, float) and not value.is_integer()):
+        raise TableError(f"{_where(line, column)}: {what} must be a whole number >= 0, "
+                         f"got {text!r}")
+    return int(value)
+
+
+def _rows(text: str, delimiter: str) -> Iterable[tuple[int, list[str]]]:
+    """(line number, stripped cells) of every row that is not blank."""
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
+    try:
+        for row in reader:
+            cells = [c.strip() for c in row]
+            if any(cells):
+                yield reader.line_num, cells
+    except csv.Error as e:
+        raise TableError(f"line {reader.line_num}: {e}") from None
+
+
+def read_cost_table(text: str, layout: TableLayout | None = None) -> CostTable:
+    """Read a CSV cost table (see the module docstring) into a JSON problem.
+
+    Raises TableError naming the line and column of the first thing that is wrong.
+    """
+    layout = layout or TableLayout()
+    rows = iter(_rows(text, layout.delimiter))
+    try:
+        header_line, header = next(rows)
+    except StopIteration:
+        raise TableError("the file has no rows; the first row must name the sinks") from None
+
+    supply_at = [k for k, name in enumerate(header) if k and layout.supply_column
+                 and name == layout.supply_column]
+    if len(supply_at) > 1:
+        raise TableError(f"line {header_line}: two columns are named "
+                         f"{layout.supply_column!r}")
+    supply_col = supply_at[0] if supply_at else None
+    sink_cols = [k for k in range(1, len(header)) if k != supply_col]
+    if not sink_cols:
+        raise TableError(f"line {header_line}: the first row names no sinks (it should be "
+                         "a corner cell, then one sink id per column)")
+    seen: dict[str, str] = {}
+    sinks: list[dict[str, Any]] = []
+    for k in sink_cols:
+        sid = header[k]
+        if not sid:
+            raise TableError(f"{_where(header_line, k + 1)}: the column has no sink id")
+        if sid in seen:
+            raise TableError(f"{_where(header_line, k + 1)}: id {sid!r} appears twice")
+        seen[sid] = _where(header_line, k + 1)
+        sinks.append({"id": sid})
+
+    table = CostTable({"sources": [], "sinks": sinks, "costs": []})
+    special: dict[str, list[int]] = {name: [] for name in (layout.demand_row,
+                                                           layout.penalty_row) if name}
+    width = len(header)
+    for line, cells in rows:
+        if len(cells) < width:
+            raise TableError(f"line {line}: {len(cells)} cells, but the first row has {width}; "
+                             "leave a cell empty to mark a pair as not allowed")
+        if any(cells[width:]):
+            raise TableError(f"line {line}: more cells than the first row has ({width})")
+        label = cells[0]
+        if not label:
+            raise TableError(f"{_where(line, 1)}: the row has no source id")
+        if label in special:
+            if special[label]:
+                raise TableError(f"line {line}: a second row named {label!r}")
+            special[label].append(line)
+            _read_sink_row(label, layout, cells, line, sink_cols, supply_col, sinks)
+            continue
+        if label in seen:
+            raise TableError(f"{_where(line, 1)}: id {label!r} appears twice "
+                             f"(first at {seen[label]})")
+        seen[label] = _where(line, 1)
+        source: dict[str, Any] = {"id": label}
+        if supply_col is not None and cells[supply_col]:
+            source["supply"] = _count(cells[supply_col], line, supply_col + 1, "supply")
+        row: list[int | float | None] = []
+        for k in sink_cols:
+            row.append(_number(cells[k], line, k + 1) if cells[k] else None)
+        table.allowed += sum(c is not None for c in row)
+        table.problem["sources"].append(source)
+        table.problem["costs"].append(row)
+    if not table.problem["sources"]:
+        raise TableError("the file has no source rows below the first row")
+    return table
+
+
+def _read_sink_row(label: str, layout: TableLayout, cells: Sequence[str], line: int,
+                   sink_cols: Sequence[int], supply_col: int | None,
+                   sinks: list[dict[str, Any]]) -> None:
+    if supply_col is not None and cells[supply_col]:
+        raise TableError(f"{_where(line, supply_col + 1)}: the {label!r} row has no "
+                         "supply; leave this cell empty")
+    for sink, k in zip(sinks, sink_cols, strict=True):
+        if not cells[k]:
+            continue                    # empty: demand 1, or hard demand
+        if label == layout.demand_row:
+            sink["demand"] = _count(cells[k], line, k + 1, "demand")
+        else:
+            penalty = _number(cells[k], line, k + 1)
+            if penalty < 0:
+                raise TableError(f"{_where(line, k + 1)}: a penalty must be >= 0, "
+                                 f"got {cells[k]!r}")
+            sink["penalty"] = penalty
+
+
+def allocation_csv(answer: Mapping[str, Any]) -> str:
+    """The allocation as CSV: a header row, then ``from,to,flow,cost`` per arc with flow."""
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(ALLOCATION_COLUMNS)
+    for row in answer.get("allocation", []):
+        writer.writerow([spreadsheet_text(str(row["from"])), spreadsheet_text(str(row["to"])),
+                         format_number(row["flow"]), format_number(row.get("cost", ""))])
+    return out.getvalue()

@@ -1,5 +1,0 @@
-"""Engines: each takes a :class:`~service.network.Network` and returns flows on its arcs.
-
-One module per engine, one entry point ``solve``; engines know nothing of HTTP, of the
-certificate or of each other. The dispatcher (:mod:`service.dispatch`) picks one by shape.
-"""

@@ -1,0 +1,54 @@
+"""Reading request bodies and writing JSON answers, shared by every view."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import orjson
+from flask import Response, current_app, request
+from werkzeug.exceptions import RequestEntityTooLarge
+
+from service.errors import MalformedBody, UnsupportedMediaType
+from service.settings import Settings
+
+
+def current_settings() -> Settings:
+    """The settings of the app serving this request."""
+    settings: Settings = current_app.extensions["certimatch.settings"]
+    return settings
+
+
+def json_body() -> Any:
+    """The parsed JSON body: 415, 413 or 400 problem documents when it is not one."""
+    mimetype = request.mimetype
+    if mimetype != "application/json" and not (
+            mimetype.startswith("application/") and mimetype.endswith("+json")):
+        got = request.content_type or "no content type"
+        raise UnsupportedMediaType(f"send the body as application/json, not {got}")
+    raw = _read_body()
+    try:
+        return orjson.loads(raw)
+    except orjson.JSONDecodeError as e:
+        raise MalformedBody(f"the body is not valid JSON: {e}") from None
+
+
+def _read_body() -> bytes:
+    """The whole body, or 413 when it is over MAX_BODY_BYTES.
+
+    Werkzeug answers 413 itself when Content-Length says too much; a chunked body has no
+    length, and its stream merely stops at the limit, so read one byte past it to know.
+    """
+    limit = current_settings().max_body_bytes
+    if request.content_length is not None:
+        return request.get_data(cache=False)   # 413 here when over the limit
+    # request.stream would stop quietly at the limit: read the server's own input stream
+    raw = request.environ["wsgi.input"].read(limit + 1)
+    if len(raw) > limit:
+        raise RequestEntityTooLarge()
+    return raw
+
+
+def json_response(doc: Any, status: int = 200,
+                  content_type: str = "application/json") -> Response:
+    return Response(orjson.dumps(doc), status=status, content_type=content_type)
+

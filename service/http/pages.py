@@ -1,0 +1,196 @@
+"""The service describes itself: the OpenAPI document at ``/v1/openapi.yaml`` and a short
+page at ``/`` with a worked example."""
+
+from __future__ import annotations
+
+import html
+import json
+import shlex
+from functools import cache
+from importlib import metadata
+from pathlib import Path, PurePosixPath
+from typing import Any
+
+from flask import Blueprint, Response, current_app, request
+
+from service.errors import ServiceError
+from service.http.body import current_settings
+from service.solve.pipeline import solve_body
+
+pages_bp = Blueprint("pages", __name__)
+
+#: The worked example of the page at /: the README's, so that its explanation of the
+#: certificate reads against the same numbers.
+EXAMPLE: dict[str, Any] = {
+    "sources": [{"id": "north", "supply": 2}, {"id": "south", "supply": 1}],
+    "sinks": [{"id": "fridge"}, {"id": "oven"}, {"id": "washer", "penalty": 50}],
+    "costs": [[20, 35, 60], [30, 25, None]],
+}
+
+#: RFC 9512 registers application/yaml for YAML documents such as this one.
+YAML_CONTENT_TYPE = "application/yaml"
+#: Where a wheel installs the spec (pyproject.toml, [tool.setuptools.data-files]).
+SPEC_DATA_PATH = ("share", "certimatch", "openapi.yaml")
+
+
+# --- the OpenAPI document ---------------------------------------------------------------
+
+def openapi_path() -> Path | None:
+    """Where this copy of the service finds openapi.yaml, or None.
+
+    The contract lives at the top of the repository, beside pyproject.toml, not inside the
+    package. A checkout (and so an editable install) reads it there, always current. A
+    wheel carries it as a data file installed under ``<prefix>/share/certimatch/``; the
+    distribution's own record says where that prefix is (a virtual environment, a user
+    install, the system), so no install scheme is guessed.
+    """
+    checkout = Path(__file__).resolve().parents[2]
+    if (checkout / "pyproject.toml").is_file() and (checkout / "openapi.yaml").is_file():
+        return checkout / "openapi.yaml"
+    # Every installed copy is asked, not only the first on sys.path: an editable install's
+    # record lists no data files, and may sit beside a wheel's on an odd path.
+    for dist in metadata.distributions(name="certimatch"):
+        for f in dist.files or []:
+            if PurePosixPath(str(f)).parts[-3:] == SPEC_DATA_PATH:
+                path = Path(str(f.locate())).resolve()
+                if path.is_file():
+                    return path
+    return None
+
+
+@cache
+def _openapi_bytes(path: Path) -> bytes:
+    return path.read_bytes()
+
+
+@pages_bp.get("/v1/openapi.yaml")
+def openapi() -> Response:
+    path = openapi_path()
+    if path is None:
+        raise ServiceError("the OpenAPI document is missing from this installation of the "
+                           "service")
+    return Response(_openapi_bytes(path), content_type=f"{YAML_CONTENT_TYPE}; charset=utf-8")
+
+
+# --- the page at / ----------------------------------------------------------------------
+
+_PAGE = """<!doctype html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>certimatch</title>
+<style>
+  body {{ font: 16px/1.55 system-ui, -apple-system, "Segoe UI", sans-serif; color: #1f2528;
+         background: #fafaf7; max-width: 54rem; margin: 0 auto; padding: 1.5rem 1.2rem 3rem; }}
+  h1 {{ font-size: 1.7rem; margin: 0 0 .2rem; }}
+  h2 {{ font-size: 1.2rem; margin: 2rem 0 .5rem; border-bottom: 1px solid #d8dad2; }}
+  h3 {{ font-size: 1rem; margin: 1.3rem 0 .4rem; }}
+  .lead {{ color: #4a5358; margin-top: 0; }}
+  nav a {{ margin-right: 1.1rem; }}
+  a {{ color: #155e75; }}
+  code, pre {{ font-family: ui-monospace, "Cascadia Mono", Menlo, Consolas, monospace; }}
+  pre {{ background: #f0f1eb; border: 1px solid #d8dad2; border-radius: 4px;
+         padding: .7rem .9rem; overflow-x: auto; font-size: .84rem; line-height: 1.4; }}
+  table {{ border-collapse: collapse; margin: .4rem 0; }}
+  th, td {{ text-align: left; padding: .25rem .9rem .25rem 0; border-bottom: 1px solid #e3e4de; }}
+  td.n {{ text-align: right; font-variant-numeric: tabular-nums; }}
+</style>
+</head>
+<body>
+<header>
+<h1>certimatch</h1>
+<p class="lead">Least-cost allocation of supply to demand over HTTP. Every answer comes with
+an optimality certificate (potentials and a cut) that anyone can check.</p>
+<nav><a href="/v1/openapi.yaml">OpenAPI document</a><a href="/healthz">/healthz</a><a
+href="/readyz">/readyz</a>{metrics_link}</nav>
+</header>
+
+<h2>Endpoints</h2>
+<table>
+<tr><th>method</th><th>path</th><th>what it does</th></tr>
+<tr><td>POST</td><td><code>/v1/solve</code></td><td>solve a problem and certify the answer</td></tr>
+<tr><td>POST</td><td><code>/v1/verify</code></td><td>check any answer against its problem</td></tr>
+<tr><td>GET</td><td><code>/v1/openapi.yaml</code></td><td>the wire format (OpenAPI 3.1)</td></tr>
+<tr><td>GET</td><td><code>/healthz</code>, <code>/readyz</code></td><td>liveness and
+readiness probes</td></tr>
+{metrics_row}</table>
+
+<h2>A worked example</h2>
+<p>Two technicians take repair tickets. <b>north</b> has two slots, <b>south</b> one. The
+cost of a pair is its travel time; south cannot repair washers (<code>null</code>). The
+washer may wait at a penalty of 50; the fridge and the oven must be served.</p>
+
+<h3>Send it</h3>
+<pre id="solve-command"><code>{command}</code></pre>
+
+<h3>The answer</h3>
+<table>
+<tr><th>from</th><th>to</th><th>units</th><th>cost</th></tr>
+{rows}</table>
+<p>{unmet} Objective: <b>{objective}</b>.</p>
+<pre id="solve-answer"><code>{answer}</code></pre>
+
+<h3>Why it is optimal</h3>
+<p>The certificate gives every source and sink a potential &pi;. The reduced cost of an arc
+i&rarr;j is <code>cost &minus; &pi;(i) + &pi;(j)</code>: arcs carrying work have reduced cost
+zero or below, unused arcs zero or above, and the dual objective computed from the
+potentials equals the objective ({dual}), which no allocation can beat. To check it
+yourself, send the problem with the answer added as <code>"answer"</code> to
+<code>POST /v1/verify</code>.</p>
+</body>
+</html>
+"""
+
+
+def _example_answer() -> dict[str, Any]:
+    # Solved on first use and kept: the service is deterministic, so the page shows what
+    # this very process answers to the command it prints.
+    state = current_app.extensions
+    if "certimatch.example" not in state:
+        state["certimatch.example"] = solve_body(EXAMPLE, current_settings())
+    answer: dict[str, Any] = state["certimatch.example"]
+    return answer
+
+
+def _layout(doc: Any, depth: int, indent: str = "") -> str:
+    """JSON with the first ``depth`` levels of objects one member per line (and lists of
+    objects one object per line), the rest on one line each: short enough to read without
+    scrolling, still valid JSON to copy."""
+    inner = indent + "  "
+    if isinstance(doc, list) and depth > 0 and doc and all(isinstance(x, dict) for x in doc):
+        return "[\n" + ",\n".join(inner + json.dumps(x) for x in doc) + "\n" + indent + "]"
+    if not isinstance(doc, dict) or depth == 0 or not doc:
+        return json.dumps(doc)
+    members = ",\n".join(f"{inner}{json.dumps(k)}: {_layout(v, depth - 1, inner)}"
+                          for k, v in doc.items())
+    return "{\n" + members + "\n" + indent + "}"
+
+
+@pages_bp.get("/")
+def home() -> Response:
+    answer = _example_answer()
+    body = _layout(EXAMPLE, 1, "    ")
+    command = (f"curl -s {shlex.quote(request.host_url + 'v1/solve')} "
+               f"-H 'Content-Type: application/json' \\\n     -d {shlex.quote(body)}")
+    rows = "".join(
+        f"<tr><td>{html.escape(r['from'])}</td><td>{html.escape(r['to'])}</td>"
+        f"<td class=\"n\">{r['flow']}</td><td class=\"n\">{r['cost']}</td></tr>\n"
+        for r in answer["allocation"])
+    unmet = " ".join(f"{html.escape(u['id'])} waits ({u['amount']} unit"
+                     f"{'s' if u['amount'] != 1 else ''})." for u in answer["unmet"])
+    metrics_on = current_settings().metrics_enabled
+    page = _PAGE.format(
+        command=html.escape(command),
+        answer=html.escape(_layout(answer, 2)),
+        rows=rows, unmet=unmet, objective=answer["objective"],
+        dual=answer["certificate"]["dual_objective"],
+        metrics_link='<a href="/metrics">/metrics</a>' if metrics_on else "",
+        metrics_row=('<tr><td>GET</td><td><code>/metrics</code></td><td>Prometheus '
+                     'metrics</td></tr>\n') if metrics_on else "")
+    response = Response(page, content_type="text/html; charset=utf-8")
+    # No script and nothing from elsewhere: the policy says so to the browser as well.
+    response.headers["Content-Security-Policy"] = (
+        "default-src 'none'; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'")
+    response.headers["X-Content-Type-Options"] = "nosniff"
+    return response

@@ -1,0 +1,157 @@
+"""Build the :class:`~service.network.model.Network` of a loaded problem.
+
+Cross-field checks the schema cannot make (unknown and duplicate ids, matrix shape,
+self-loops, size limits) happen here, and every number becomes an exact integer on one
+cost grid (see :mod:`service.network.model`).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from schemas.problem import ARC_ENDS, ID_TABLES, declared_ids
+from service.errors import InvalidProblem, TooLarge
+from service.network.model import COST_DECIMALS, FORBIDDEN, Arcs, Network
+from service.settings import Settings
+
+
+def _limit(count: int, limit: int, what: str, setting: str) -> None:
+    if count > limit:
+        raise TooLarge(f"{what} has {count} entries, more than the limit of {limit} "
+                       f"(setting {setting})", limit=limit)
+
+
+def build_network(data: dict[str, Any], settings: Settings) -> Network:
+    """Turn a loaded problem (``ProblemSchema().load``) into a :class:`Network`.
+
+    Raises InvalidProblem listing every cross-field error (unknown or duplicate ids,
+    matrix shape, self-loops) and TooLarge when a size limit of ``settings`` is exceeded.
+    """
+    sources, sinks = data["sources"], data["sinks"]
+    nodes = data.get("nodes")
+    n_src, n_snk, n_mid = len(sources), len(sinks), len(nodes) if nodes else 0
+    _limit(n_src + n_snk + n_mid, settings.max_nodes, "sources + sinks + nodes", "MAX_NODES")
+    errors: list[dict[str, str]] = []
+    if n_src == 0:
+        errors.append({"pointer": "/sources", "detail": "must hold at least one source"})
+    if n_snk == 0:
+        errors.append({"pointer": "/sinks", "detail": "must hold at least one sink"})
+    groups = [(name, data.get(name)) for name in ID_TABLES]
+    ids = declared_ids(data)
+    errors.extend(_check_ids(ids, groups, settings.max_id_length))
+    if errors:
+        raise InvalidProblem(errors)
+
+    penalty_present = sinks.present["penalty"]
+    penalty = sinks.columns["penalty"]
+    sign = -1 if data["objective"] == "max" else 1
+    dense = arc_list = None
+    if "costs" in data:
+        matrix = data["costs"]
+        _check_matrix(matrix, n_src, n_snk, settings, errors)
+        if errors:
+            raise InvalidProblem(errors)
+        whole_penalties = _whole(penalty[penalty_present])
+        if matrix.dtype == np.int64 and whole_penalties:
+            scale = 1                       # whole costs, every cell allowed: no copy
+            dense = _min_form(matrix, scale, sign)
+        else:
+            allowed = ~np.isnan(matrix)
+            values = np.where(allowed, matrix, 0.0)
+            scale = _scale_for(values, penalty[penalty_present])
+            dense = _scaled(values, scale) * sign
+            dense[~allowed] = FORBIDDEN
+    else:
+        table = data["arcs"]
+        tail, head = _arc_ends(table, settings, errors)
+        if errors:
+            raise InvalidProblem(errors)
+        scale = _scale_for(table.columns["cost"], penalty[penalty_present])
+        bounded = table.present["capacity"].copy()
+        arc_list = Arcs(id=np.arange(len(tail), dtype=np.int64), tail=tail, head=head,
+                        cost=_min_form(table.columns["cost"], scale, sign),
+                        capacity=np.where(bounded, table.columns["capacity"], 0).astype(np.int64),
+                        bounded=bounded)
+    return Network(
+        ids=ids, n_sources=n_src, n_nodes=n_mid, n_sinks=n_snk,
+        supply=sources.columns["supply"], demand=sinks.columns["demand"],
+        penalty=np.where(penalty_present, _scaled(penalty, scale), 0),
+        soft=penalty_present.copy(), dense=dense, arc_list=arc_list,
+        maximize=sign < 0, reject_unmet=data["unmet_demand"] == "reject", cost_scale=scale,
+    )
+
+
+def _scale_for(costs: np.ndarray, penalties: np.ndarray) -> int:
+    return 1 if _whole(costs) and _whole(penalties) else 10**COST_DECIMALS
+
+
+def _whole(values: np.ndarray) -> bool:
+    return values.dtype.kind == "i" or bool(np.all(values == np.floor(values)))
+
+
+def _scaled(values: np.ndarray, scale: int) -> np.ndarray:
+    """Values on the integer grid of ``scale``; integers are exact as they are."""
+    if values.dtype.kind == "i":
+        return values * scale if scale != 1 else values
+    return np.rint(values * scale).astype(np.int64)
+
+
+def _min_form(values: np.ndarray, scale: int, sign: int) -> np.ndarray:
+    """Costs as the engines take them; whole costs of a min problem are used as loaded."""
+    scaled = _scaled(values, scale)
+    return scaled if sign > 0 else -scaled
+
+
+def _check_ids(ids: list[str], groups: list, max_len: int) -> list[dict[str, str]]:
+    errors: list[dict[str, str]] = []
+    too_long = max(map(len, ids), default=0) > max_len
+    unique = len(set(ids)) == len(ids)
+    if unique and not too_long:
+        return errors
+    first: dict[str, str] = {}
+    for name, table in groups:
+        if table is None:
+            continue
+        for i, id_ in enumerate(table.columns["id"]):
+            pointer = f"/{name}/{i}/id"
+            if len(id_) > max_len:
+                errors.append({"pointer": pointer,
+                               "detail": f"must be at most {max_len} characters long"})
+            if id_ in first:
+                errors.append({"pointer": pointer,
+                               "detail": f"duplicate id {id_!r} (first at {first[id_]})"})
+            else:
+                first[id_] = pointer
+    return errors
+
+
+def _check_matrix(matrix: np.ndarray, n_src: int, n_snk: int, settings: Settings,
+                  errors: list[dict[str, str]]) -> None:
+    rows, cols = matrix.shape
+    _limit(rows * cols, settings.max_cells, "costs", "MAX_CELLS")
+    if rows != n_src:
+        errors.append({"pointer": "/costs",
+                       "detail": f"has {rows} rows, expected {n_src} (one per source)"})
+    elif cols != n_snk and rows > 0:
+        errors.append({"pointer": "/costs/0",
+                       "detail": f"has {cols} entries, expected {n_snk} (one per sink)"})
+
+
+def _arc_ends(arcs: Any, settings: Settings,
+              errors: list[dict[str, str]]) -> tuple[np.ndarray, np.ndarray]:
+    """(tail, head) node indices as the schema resolved them (RecordList ``references``);
+    -1 marks a name that is no declared id."""
+    n = len(arcs)
+    _limit(n, settings.max_arcs, "arcs", "MAX_ARCS")
+    for key in ARC_ENDS:
+        names, idx = arcs.columns[key], arcs.resolved[key]
+        for i in np.flatnonzero(idx < 0)[:50].tolist():
+            errors.append({"pointer": f"/arcs/{i}/{key}", "detail": f"unknown id {names[i]!r}"})
+    tail, head = (arcs.resolved[key] for key in ARC_ENDS)
+    loops = np.flatnonzero((tail == head) & (tail >= 0))
+    for i in loops[:50].tolist():
+        errors.append({"pointer": f"/arcs/{i}",
+                       "detail": f"arc from {arcs.columns['from'][i]!r} to itself"})
+    return tail, head

@@ -1,0 +1,91 @@
+"""The 200 answer of /v1/solve, built from the network, the flows and the certificate.
+
+Numbers leave as exact integers when the request's costs were whole; otherwise costs,
+potentials and objectives are divided back by the network's ``cost_scale``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from schemas.numbers import MAX_ANSWER_VALUE
+from service.errors import OutOfRange
+from service.network.model import Network
+from service.solve.certificate import Certificate
+from service.solve.dispatch import Solution
+
+
+def _values(net: Network, scaled: np.ndarray) -> list:
+    if net.cost_scale == 1:
+        if len(scaled) and int(np.abs(scaled).max()) >= MAX_ANSWER_VALUE:
+            raise OutOfRange("a cost, potential or objective of this problem reaches 2**53, "
+                             "beyond exact JSON numbers; use smaller costs")
+        return scaled.tolist()
+    return (scaled / net.cost_scale).tolist()
+
+
+def _value(net: Network, scaled: int) -> int | float:
+    return _values(net, np.array([scaled], np.int64))[0]
+
+
+def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[str, Any]:
+    """The answer document (plain dicts and lists, ready for JSON)."""
+    ext, xv, pi = cert.ext, cert.virtual_flow, cert.potential
+    ids = net.ids
+    flow = solution.flow
+    tail, head = net.endpoints(flow.arc)
+    order = np.lexsort((flow.arc, head, tail))
+    arc, tail, head, amount = flow.arc[order], tail[order], head[order], flow.amount[order]
+    froms = [ids[i] for i in tail.tolist()]
+    tos = [ids[i] for i in head.tolist()]
+    flows = amount.tolist()
+    costs = _values(net, amount * net.arc_cost(arc) * net.sign)
+    if net.from_matrix:
+        allocation = [{"from": f, "to": t, "flow": q, "cost": c}
+                      for f, t, q, c in zip(froms, tos, flows, costs, strict=True)]
+    else:
+        allocation = [{"from": f, "to": t, "flow": q, "cost": c, "arc": a}
+                      for f, t, q, c, a in zip(froms, tos, flows, costs, arc.tolist(),
+                                               strict=True)]
+    off = net.sink_offset
+    short = np.zeros(net.n_sinks, np.int64)
+    short[ext.soft_sinks] = xv[ext.blocks["soft"]]
+    short[ext.hard_sinks] = xv[ext.blocks["hard"]]
+    idle = net.supply - xv[ext.blocks["supply"]]
+    sign = net.sign
+    side = solution.shortfall.sink_side
+    cut_sinks = np.flatnonzero(side[off:] & ~net.soft)
+    cut_capacity = int(net.supply[side[: net.n_sources]].sum())
+    if side.any() and net.arc_list is not None:
+        arcs = net.arc_list
+        cut_capacity += int(arcs.capacity[~side[arcs.tail] & side[arcs.head]].sum())
+    potentials = _values(net, pi)
+    return {
+        "status": "optimal",
+        "shape": solution.shape,
+        "solver": solution.solver,
+        "objective": _value(net, sign * cert.primal),
+        "flow_value": int(xv[ext.blocks["supply"]].sum()),
+        "allocation": allocation,
+        "unmet": [{"id": ids[off + i], "amount": int(short[i])}
+                  for i in np.flatnonzero(short).tolist()],
+        "unused": [{"id": ids[i], "amount": int(idle[i])}
+                   for i in np.flatnonzero(idle).tolist()],
+        "certificate": {
+            "negated": net.maximize,
+            "potentials": dict(zip(ids, potentials[: net.n_user], strict=True)),
+            "virtual_potentials": {"super_source": potentials[ext.S],
+                                   "super_sink": potentials[ext.T],
+                                   "hard_pool": potentials[ext.P]},
+            "hard_shortfall": solution.shortfall.amount,
+            "cut": {
+                "sink_side": [ids[i] for i in np.flatnonzero(side).tolist()],
+                "sinks": [ids[off + i] for i in cut_sinks.tolist()],
+                "demand": int(net.demand[cut_sinks].sum()),
+                "capacity": cut_capacity,
+            },
+            "dual_objective": _value(net, sign * cert.dual),
+        },
+    }
