@@ -4,24 +4,29 @@ from __future__ import annotations
 
 import argparse
 import json
+import signal
 import subprocess
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from importlib import resources
+from types import FrameType
 from typing import Any
 
+from service.cli.credentials import resolve_token
 from service.cli.serve import _child_env, _gunicorn_argv, _port_free, _stop, _wait_healthy
 from service.cli.talk import (
     DEFAULT_HOST,
     EXIT_ERROR,
     EXIT_INTERRUPTED,
     EXIT_OK,
+    EXIT_TERMINATED,
     CliError,
     Post,
-    _http_post,
     _print_problem,
 )
 from service.cli.text import _num, _table, _verdict_line
+from service.cli.transport import _http_post
 
 DEMO_FILES = ("repair_tickets.json", "parts_network.json")
 
@@ -134,7 +139,58 @@ def _run_demo(post: Post) -> int:
     return code
 
 
+class _Terminated(BaseException):
+    """SIGTERM arrived; raised like KeyboardInterrupt so that the server is stopped."""
+
+
+class _Sigterm:
+    """SIGTERM (systemd, docker stop, kill) ends the demo as Ctrl-C does, server included.
+
+    While ``hold`` is set (the moment between starting gunicorn and holding it in a
+    ``try`` whose ``finally`` stops it) the signal is only noted, and :meth:`release`
+    raises it afterwards, so no SIGTERM can leave a server behind.
+    """
+
+    def __init__(self) -> None:
+        self.hold = False
+        self.pending = False
+
+    def handler(self, signum: int, frame: FrameType | None) -> None:
+        # Once is enough: a second SIGTERM while the server stops must not cut that short.
+        signal.signal(signal.SIGTERM, signal.SIG_IGN)
+        if self.hold:
+            self.pending = True
+            return
+        raise _Terminated
+
+    def release(self) -> None:
+        self.hold = False
+        if self.pending:
+            raise _Terminated
+
+    @contextmanager
+    def installed(self) -> Iterator[_Sigterm]:
+        try:
+            previous = signal.signal(signal.SIGTERM, self.handler)
+        except ValueError:          # not the main thread: signals cannot be caught here
+            yield self
+            return
+        try:
+            yield self
+        finally:
+            signal.signal(signal.SIGTERM, previous)
+
+
 def _cmd_demo(args: argparse.Namespace) -> int:
+    with _Sigterm().installed() as sigterm:
+        try:
+            return _run_server_and_demo(args, sigterm)
+        except _Terminated:         # before the server was started: nothing to stop
+            return EXIT_TERMINATED
+
+
+def _run_server_and_demo(args: argparse.Namespace, sigterm: _Sigterm) -> int:
+    token = resolve_token(args)
     host = DEFAULT_HOST
     # Checked first: otherwise gunicorn retries the bind while /healthz polling could
     # reach whatever already listens there and demo someone else's server.
@@ -144,17 +200,20 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     argv = _gunicorn_argv(host, args.port, 2, control_socket=False)
     # The server's logs (the deploy config sends its access log to stdout) go to our
     # stderr, so that stdout holds the demo's tables alone.
-    proc = subprocess.Popen(argv, env=_child_env(), stdout=2)
     serving = False
+    sigterm.hold = True
+    proc = subprocess.Popen(argv, env=_child_env(), stdout=2)
     try:
+        sigterm.release()
         if not _wait_healthy(base, proc, DEMO_START_SECONDS):
             state = ("exited with status " + str(proc.returncode) if proc.poll() is not None
                      else f"did not answer /healthz within {DEMO_START_SECONDS:g} s")
             raise CliError(f"the server at {base} {state}")
-        code = _run_demo(_http_post(base, timeout=60.0))
+        code = _run_demo(_http_post(base, 60.0, token))
         if args.exit or code != EXIT_OK:
             return code
-        print(f"\nserver running at {base} -- press Ctrl-C to stop", flush=True)
+        print(f"\nserver running at {base} -- press Ctrl-C (or send SIGTERM) to stop",
+              flush=True)
         serving = True
         proc.wait()
         print(f"certimatch: the server stopped by itself (status {proc.returncode})",
@@ -163,5 +222,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     except KeyboardInterrupt:
         # Ctrl-C is how a serving demo is meant to end; before that it cuts the demo short.
         return EXIT_OK if serving else EXIT_INTERRUPTED
+    except _Terminated:
+        return EXIT_OK if serving else EXIT_TERMINATED
     finally:
         _stop(proc)

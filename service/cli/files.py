@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import argparse
+import hashlib
 import json
 import os
 import sys
 import time
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -45,19 +47,19 @@ def _progress(args: argparse.Namespace) -> _Progress:
 
 
 def _timed_post(post: Post, where: str | None, path: str, body: bytes,
-                progress: _Progress) -> Reply:
+                progress: _Progress, headers: Mapping[str, str] | None = None) -> Reply:
     progress.say(f"posting {_size(len(body))} to {where}{path}" if where else
                  f"sending {_size(len(body))} to {path} in this process")
     started = time.monotonic()
-    reply = post(path, body)
+    reply = post(path, body, headers)
     progress.say(f"answered {reply.status} in {time.monotonic() - started:.1f} s")
     return reply
 
 
-def _input_kind(args: argparse.Namespace) -> str:
+def _input_kind(args: argparse.Namespace, name: str) -> str:
     if args.input:
         return str(args.input)
-    return "csv" if args.file.lower().endswith(".csv") else "json"
+    return "csv" if name.lower().endswith(".csv") else "json"
 
 
 def _delimiter(text: str) -> str:
@@ -78,7 +80,10 @@ def _reject_constant(name: str) -> Any:
 
 def _parse_json(raw: bytes) -> Any:
     """Strict JSON like the service's: no NaN or Infinity."""
-    return json.loads(raw, parse_constant=_reject_constant)
+    try:
+        return json.loads(raw, parse_constant=_reject_constant)
+    except RecursionError:
+        raise ValueError("nested too deeply") from None
 
 
 @dataclass
@@ -88,28 +93,39 @@ class _Problem:
     body: bytes
     problem: dict[str, Any] | None
     note: str = ""
+    digest: str = ""      # SHA-256 of the input as read, before any option changed it
 
 
-def _load_problem(args: argparse.Namespace, need_dict: bool) -> _Problem:
-    raw = _read_input(args.file)
+def _load_problem(args: argparse.Namespace, need_dict: bool, name: str | None = None
+                  ) -> _Problem:
+    """Read the problem ``name`` (default: FILE), JSON or a CSV cost table."""
+    name = args.file if name is None else name
+    raw = _read_input(name)
+    loaded = _read_problem(args, need_dict, name, raw)
+    loaded.digest = hashlib.sha256(raw).hexdigest()
+    return loaded
+
+
+def _read_problem(args: argparse.Namespace, need_dict: bool, name: str, raw: bytes
+                  ) -> _Problem:
     overrides = _overrides(args)
-    if _input_kind(args) == "csv":
+    if _input_kind(args, name) == "csv":
         from service.cli.tables import TableError, TableLayout, read_cost_table
 
         try:
             text = raw.decode("utf-8-sig")   # spreadsheets' "CSV UTF-8" starts with a BOM
         except UnicodeDecodeError as e:
-            raise CliError(f"{args.file} is not UTF-8 text ({e.reason} at byte {e.start}); "
+            raise CliError(f"{name} is not UTF-8 text ({e.reason} at byte {e.start}); "
                            "save the sheet as CSV in UTF-8") from None
         layout = TableLayout(args.supply_column, args.demand_row, args.penalty_row,
                              args.delimiter)
         try:
             table = read_cost_table(text, layout)
         except TableError as e:
-            raise CliError(f"{args.file}: {e}") from None
+            raise CliError(f"{name}: {e}") from None
         problem = {**table.problem, **overrides}
         rows, cols = table.shape
-        note = (f"read {args.file}: {rows} sources x {cols} sinks, {table.allowed} of "
+        note = (f"read {name}: {rows} sources x {cols} sinks, {table.allowed} of "
                 f"{rows * cols} pairs allowed")
         return _Problem(json.dumps(problem, separators=(",", ":")).encode(), problem, note)
     if not overrides and not need_dict:
@@ -125,6 +141,34 @@ def _load_problem(args: argparse.Namespace, need_dict: bool) -> _Problem:
         return _Problem(raw, parsed)
     parsed.update(overrides)
     return _Problem(json.dumps(parsed, separators=(",", ":")).encode(), parsed)
+
+
+def _read_json_object(name: str, what: str) -> dict[str, Any]:
+    try:
+        doc = _parse_json(_read_input(name))
+    except ValueError as e:
+        raise CliError(f"{name} is not valid JSON: {e}") from None
+    if not isinstance(doc, dict):
+        raise CliError(f"{name} must hold a JSON object ({what}), not {type(doc).__name__}")
+    return doc
+
+
+def _problem_with_answer(args: argparse.Namespace) -> dict[str, Any]:
+    """FILE (JSON or CSV) with its answer: FILE's own, or the one of --answer."""
+    if _input_kind(args, args.file) == "csv":
+        loaded = _load_problem(args, need_dict=True)
+        assert loaded.problem is not None     # a CSV table always becomes a dict
+        body = loaded.problem
+    else:
+        body = {**_read_json_object(args.file, "a problem"), **_overrides(args)}
+    if args.answer is not None:
+        if "answer" in body:
+            raise CliError(f"{args.file} already holds an \"answer\"; leave out --answer")
+        body["answer"] = _read_json_object(args.answer, "an answer from solve")
+    elif "answer" not in body:
+        raise CliError(f"{args.file} holds no \"answer\": give the answer file with "
+                       "--answer ANSWER.json")
+    return body
 
 
 def _write_output(text: str, output: str | None) -> None:

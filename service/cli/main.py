@@ -1,15 +1,11 @@
 """The ``certimatch`` command: run the server, send it problems, report on answers, demo.
 
 ``solve``, ``verify`` and ``report`` are made for scripts (cron jobs, CI steps), so their
-exit codes carry the verdict and stdout carries only the result (or -o FILE does)::
-
-    0  solve: an optimal allocation        verify, report: the answer is valid
-    2  solve: hard demand cannot be met    verify, report: the answer is not valid
-    1  anything else: unreadable file, invalid problem, no server, server error
-
-Every other answer (an RFC 9457 problem document) goes to stderr as received. ``solve``
-also reads a CSV cost table (service/cli/tables.py) and writes a table or CSV; ``report``
-runs the verifier in this process and renders the audit page (service/report/).
+exit codes carry the verdict (the table is in service/cli/helps.py and the README) and
+stdout carries only the result (or -o FILE does). Every other answer (an RFC 9457 problem
+document) goes to stderr as received. ``solve`` also reads a CSV cost table
+(service/cli/tables.py) and writes a table or CSV sheets (service/cli/sheets.py);
+``report`` runs the verifier in this process and renders the audit page (service/report/).
 """
 
 from __future__ import annotations
@@ -17,11 +13,15 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
+from typing import Any, NoReturn
 
 from service import __version__
+from service.cli.credentials import TOKEN_ENV, redact_secrets, token_argument
 from service.cli.demo import _cmd_demo
-from service.cli.files import PROGRESS_BYTES, _delimiter
+from service.cli.files import _delimiter
+from service.cli.helps import MAIN_EPILOG, REPORT_EPILOG, SOLVE_EPILOG, VERIFY_EPILOG
 from service.cli.report import _cmd_report
+from service.cli.retries import DEFAULT_RETRIES
 from service.cli.serve import _cmd_serve
 from service.cli.solve import _cmd_solve
 from service.cli.talk import (
@@ -33,8 +33,12 @@ from service.cli.talk import (
     URL_ENV,
     CliError,
 )
-from service.cli.text import _size
 from service.cli.verify import _cmd_verify
+
+#: Longest --timeout: one day, as for the server's own time limits.
+MAX_SECONDS = 86_400.0
+#: Longest --idempotency-key.
+MAX_KEY_LENGTH = 200
 
 # --- command line -----------------------------------------------------------------------
 
@@ -52,84 +56,27 @@ def _positive(text: str) -> int:
     return value
 
 
-_MAIN_EPILOG = f"""\
-examples:
-  certimatch serve                          run the service on {DEFAULT_HOST}:{DEFAULT_PORT}
-  certimatch solve problem.json > answer.json
-                                            solve with the running service
-  certimatch solve costs.csv --format table --local
-                                            a cost table from a spreadsheet, solved here
-  certimatch solve costs.csv --format csv -o allocation.csv
-                                            the allocation as a sheet, for a spreadsheet
-  certimatch verify problem_with_answer.json
-                                            check any answer against its problem
-  certimatch report problem.json --answer answer.json -o report.html
-                                            an audit report to open in a browser
-  certimatch demo                           start a server and solve two invented scenarios
+def _count(text: str) -> int:
+    value = int(text)
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be 0 or more, got {value}")
+    return value
 
-exit codes of solve, verify and report:
-  0  solve: optimal allocation     verify, report: the answer is valid
-  2  solve: hard demand cannot be met (only with --unmet-demand reject)
-     verify, report: the answer is NOT valid (report still writes the page)
-  1  anything else: unreadable file, invalid problem, no server, server error,
-     wrong options
 
-"certimatch COMMAND --help" explains one command. Without --url, solve and verify
-use ${URL_ENV}, else {DEFAULT_URL}.
-"""
+def _seconds(text: str) -> float:
+    value = float(text)
+    if not 0 < value <= MAX_SECONDS:
+        raise argparse.ArgumentTypeError(f"must be more than 0 and at most {MAX_SECONDS}, "
+                                         f"got {text}")
+    return value
 
-_CSV_HELP = """\
-CSV cost tables (FILE ending in .csv, or --input csv):
-  ,ticket-1,ticket-2,ticket-3,supply     first row: a corner cell, then one sink id
-  tech-a,10,25,,2                        per column; each further row: a source id,
-  tech-b,12,,15,1                        then its cost to each sink. An empty cell
-  demand,1,2,1,                          means the pair is not allowed.
-  penalty,,,30,
-  Optional: a column "supply" (each source's supply), a row "demand" (each sink's
-  demand), a row "penalty" (cost of each unit left unmet; empty = hard demand).
-  Without them every supply and demand is 1 and all demand is hard. Empty cells
-  in them mean the same defaults. Spaces around cells are ignored; a UTF-8 byte
-  order mark (as spreadsheets write "CSV UTF-8") is fine. Decimals take a dot.
-"""
 
-_SOLVE_EPILOG = _CSV_HELP + f"""
-output (--format):
-  json   the answer document exactly as the service returns it (default)
-  table  allocation, unmet demand, unused supply, objective, aligned for reading,
-         and the verdict of /v1/verify on the answer (exit 1 if it is not valid)
-  csv    the allocation as rows from,to,flow,cost with a header row; ids that a
-         spreadsheet would run as a formula (starting with = + - @) get a leading '
-
-progress lines go to stderr when the body is {_size(PROGRESS_BYTES)} or more or stderr
-is a terminal; with --progress always, with --quiet never. Errors from the service go
-to stderr as the RFC 9457 JSON document it sent.
-
-examples:
-  certimatch solve problem.json --local
-  certimatch solve costs.csv --objective max --format table
-  certimatch solve costs.csv --unmet-demand reject --format csv -o plan.csv
-  certimatch solve - --url http://solver.internal:8080 < problem.json
-
-exit codes: 0 optimal; 2 hard demand cannot be met (--unmet-demand reject);
-1 anything else (nothing is written to -o FILE then).
-"""
-
-_REPORT_EPILOG = _CSV_HELP + """
-The page is one HTML file with inline styles and drawings, no script and nothing
-loaded from anywhere: the verdict of the independent verifier (run here, on this
-machine, not taken from the answer), every check, a heat map of reduced costs
-with the chosen pairs ringed (or a diagram of the allocation for networks and
-larger problems), unmet demand, unused supply, and what the certificate proves.
-
-examples:
-  certimatch solve problem.json > answer.json
-  certimatch report problem.json --answer answer.json -o report.html
-  certimatch report problem_with_answer.json -o heatmap.svg
-  certimatch report costs.csv --answer answer.json -o report.html
-
-exit codes: 0 the answer is valid; 2 it is NOT valid (the report is still written);
-1 anything else (unreadable file, not a problem with an answer).
-"""
+def _key(text: str) -> str:
+    # Visible ASCII: the key travels in a header, and the service compares it byte for byte.
+    if not 1 <= len(text) <= MAX_KEY_LENGTH or not all("!" <= c <= "~" for c in text):
+        raise argparse.ArgumentTypeError(f"must be 1 to {MAX_KEY_LENGTH} visible ASCII "
+                                         "characters (no spaces)")
+    return text
 
 
 def _add_problem_options(cmd: argparse.ArgumentParser) -> None:
@@ -155,26 +102,86 @@ def _add_problem_options(cmd: argparse.ArgumentParser) -> None:
 
 
 def _add_talk_options(cmd: argparse.ArgumentParser) -> None:
-    where = cmd.add_mutually_exclusive_group()
+    talk = cmd.add_argument_group("server, token and retries")
+    where = talk.add_mutually_exclusive_group()
     where.add_argument("--url", help=f"service URL (default: ${URL_ENV} or {DEFAULT_URL})")
     where.add_argument("--local", action="store_true",
                        help="answer in this process, without a server")
-    cmd.add_argument("--timeout", type=float, default=300.0,
-                     help="seconds to wait for the server (%(default)s)")
+    talk.add_argument("--timeout", type=_seconds, default=300.0, metavar="S",
+                      help="seconds to wait for each attempt's answer (%(default)g)")
+    talk.add_argument("--retries", type=_count, default=DEFAULT_RETRIES, metavar="N",
+                      help="retries of a transient failure, 0 for none (%(default)s)")
+    _add_token_options(talk)
+
+
+def _add_token_options(group: argparse._ArgumentGroup) -> None:
+    token = group.add_mutually_exclusive_group()
+    # No default shown, and the type keeps the value out of repr() and error messages.
+    token.add_argument("--token", type=token_argument, metavar="TOKEN",
+                       help="bearer token; visible to other users in `ps`, so prefer "
+                       f"--token-file or ${TOKEN_ENV}")
+    token.add_argument("--token-file", metavar="FILE",
+                       help="read the bearer token from FILE's first line (not blank, "
+                       "not # comment); refused if every user may read FILE")
 
 
 def _add_chatter_options(cmd: argparse.ArgumentParser) -> None:
     chatter = cmd.add_mutually_exclusive_group()
     chatter.add_argument("-q", "--quiet", action="store_true",
-                         help="no progress lines on stderr")
+                         help="nothing on stderr but errors: no progress, retry or summary "
+                         "lines")
     chatter.add_argument("--progress", action="store_true",
                          help="progress lines on stderr even for small problems")
 
 
-def _parser() -> argparse.ArgumentParser:
+def _add_solve(sub: Any, raw: type[argparse.HelpFormatter]) -> None:
+    solve = sub.add_parser(
+        "solve", help="solve problems (JSON, or CSV cost tables)", formatter_class=raw,
+        epilog=SOLVE_EPILOG,
+        description="Send a problem to /v1/solve and write the answer: the least-cost\n"
+        "allocation with its certificate. FILE is a JSON problem (see openapi.yaml) or a\n"
+        "CSV cost table (below); - reads standard input. Several FILEs, or a folder,\n"
+        "are solved one by one into --out-dir.")
+    solve.add_argument("file", metavar="FILE", nargs="+",
+                       help="the problem: JSON or CSV, - for stdin, or a folder")
+    _add_problem_options(solve)
+    out = solve.add_argument_group("output")
+    out.add_argument("--format", choices=("json", "table", "csv"), default="json",
+                     help="json (default), table or csv; see below")
+    out.add_argument("-o", "--output", metavar="FILE",
+                     help="write the answer to FILE instead of stdout (replaced whole, "
+                     "only when a plan came back)")
+    out.add_argument("--out-dir", metavar="DIR",
+                     help="with several inputs: write one answer file per input here")
+    out.add_argument("--unmet-csv", metavar="FILE",
+                     help="write unmet demand to FILE: id,amount,demand,hard")
+    out.add_argument("--unused-csv", metavar="FILE",
+                     help="write unused supply to FILE: id,amount,supply")
+    out.add_argument("--summary-json", metavar="FILE",
+                     help="write a summary (objective, shortfalls, exit code) to FILE")
+    out.add_argument("--spreadsheet-safe", action=argparse.BooleanOptionalAction,
+                     default=True,
+                     help="put ' before ids starting with = + - @ ' in CSV output (default: "
+                     "on); --no-spreadsheet-safe writes ids exactly")
+    _add_chatter_options(solve)
+    _add_talk_options(solve)
+    solve.add_argument("--idempotency-key", type=_key, metavar="KEY",
+                       help="the Idempotency-Key of the solve (default: a new UUID per "
+                       "run); with several inputs, KEY-<digest of each input>")
+    solve.set_defaults(handler=_cmd_solve)
+
+
+def _parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
     raw = argparse.RawDescriptionHelpFormatter
-    p = argparse.ArgumentParser(
-        prog="certimatch", formatter_class=raw, epilog=_MAIN_EPILOG,
+    given = list(argv)
+
+    class Parser(argparse.ArgumentParser):
+        def error(self, message: str) -> NoReturn:
+            # argparse quotes arguments back; a token on the command line must not be.
+            super().error(redact_secrets(message, given))
+
+    p = Parser(
+        prog="certimatch", formatter_class=raw, epilog=MAIN_EPILOG,
         description="Least-cost allocation of supply to demand, with a proof of optimality.\n\n"
         "Sources (who can do work, and how much) are matched to sinks (what needs doing)\n"
         "at the least total cost; every answer carries a certificate, potentials and a\n"
@@ -196,35 +203,25 @@ def _parser() -> argparse.ArgumentParser:
                        "(CERTIMATCH_TOKENS); anyone who reaches it can use the service")
     serve.set_defaults(handler=_cmd_serve)
 
-    solve = sub.add_parser(
-        "solve", help="solve a problem (JSON, or a CSV cost table)", formatter_class=raw,
-        epilog=_SOLVE_EPILOG,
-        description="Send a problem to /v1/solve and write the answer: the least-cost\n"
-        "allocation with its certificate. FILE is a JSON problem (see openapi.yaml) or a\n"
-        "CSV cost table (below); - reads standard input.")
-    solve.add_argument("file", metavar="FILE", help="the problem: JSON or CSV, - for stdin")
-    _add_problem_options(solve)
-    out = solve.add_argument_group("output")
-    out.add_argument("--format", choices=("json", "table", "csv"), default="json",
-                     help="json (default), table or csv; see below")
-    out.add_argument("-o", "--output", metavar="FILE",
-                     help="write to FILE instead of stdout (replaced whole, only on success)")
-    _add_chatter_options(solve)
-    _add_talk_options(solve)
-    solve.set_defaults(handler=_cmd_solve)
+    _add_solve(sub, raw)
 
     verify = sub.add_parser(
-        "verify", help="check an answer against its problem",
-        description="Send a problem with an \"answer\" to /v1/verify and print the verdict "
-        "and every check. Exit 0 valid, 2 not valid, 1 otherwise.")
+        "verify", help="check an answer against its problem", formatter_class=raw,
+        epilog=VERIFY_EPILOG,
+        description="Send a problem with its answer to /v1/verify and print the verdict\n"
+        "and every check. The answer is FILE's \"answer\", or the file --answer names.")
     verify.add_argument("file", metavar="FILE",
-                        help="JSON problem with an \"answer\", or - for standard input")
+                        help="the problem (JSON or CSV), with an \"answer\" unless --answer "
+                        "is given; - for stdin")
+    verify.add_argument("--answer", metavar="ANSWER",
+                        help="the answer, as certimatch solve or /v1/solve wrote it")
+    _add_problem_options(verify)
     _add_talk_options(verify)
     verify.set_defaults(handler=_cmd_verify)
 
     report = sub.add_parser(
         "report", help="write an audit report (HTML page or SVG picture) for an answer",
-        formatter_class=raw, epilog=_REPORT_EPILOG,
+        formatter_class=raw, epilog=REPORT_EPILOG,
         description="Check an answer with the independent verifier, here in this process,\n"
         "and write a page an auditor can read: the verdict, the checks, a picture of the\n"
         "allocation and what the certificate proves.")
@@ -245,19 +242,22 @@ def _parser() -> argparse.ArgumentParser:
 
     demo = sub.add_parser("demo", help="start a server and solve the demo problems",
                           description="Start gunicorn on 127.0.0.1, solve and verify the "
-                          "demo problems, print them, then keep serving until Ctrl-C.")
+                          "demo problems, print them, then keep serving until Ctrl-C or "
+                          "SIGTERM, either of which stops the server.")
     demo.add_argument("--port", type=_port, default=DEFAULT_PORT,
                       help="port to bind (%(default)s)")
     demo.add_argument("--exit", action="store_true",
                       help="stop the server after the demo instead of serving on")
+    _add_token_options(demo.add_argument_group("token (when CERTIMATCH_TOKENS is set)"))
     demo.set_defaults(handler=_cmd_demo)
     return p
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``certimatch`` console script; returns the exit code."""
+    argv = sys.argv[1:] if argv is None else list(argv)
     try:
-        args = _parser().parse_args(argv)
+        args = _parser(argv).parse_args(argv)
     except SystemExit as e:
         # argparse exits 2 on a usage error, which scripts would read as "infeasible".
         return EXIT_OK if e.code in (0, None) else EXIT_ERROR
@@ -265,5 +265,5 @@ def main(argv: Sequence[str] | None = None) -> int:
         code: int = args.handler(args)
     except CliError as e:
         print(f"certimatch: {e}", file=sys.stderr)
-        return EXIT_ERROR
+        return e.code
     return code

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import requests
 
+from service.cli.credentials import TOKEN_ENV
 from service.cli.talk import (
     DEFAULT_HOST,
     DEFAULT_PORT,
@@ -75,7 +76,8 @@ def _gunicorn_argv(host: str | None, port: int | None, workers: int | None, *,
 def _child_env() -> dict[str, str]:
     # gunicorn imports the app by name; with the package's folder on PYTHONPATH that works
     # from any working directory, installed or not.
-    env = dict(os.environ)
+    # The client's own token (CERTIMATCH_TOKEN) is no business of a server we start.
+    env = {k: v for k, v in os.environ.items() if k != TOKEN_ENV}
     parts = [str(_source_root()), env.get("PYTHONPATH", "")]
     env["PYTHONPATH"] = os.pathsep.join(p for p in parts if p)
     return env

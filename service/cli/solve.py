@@ -1,14 +1,42 @@
-"""``certimatch solve``: send a problem, write the answer as JSON, a table or CSV."""
+"""``certimatch solve``: send a problem, write the answer as JSON, a table or CSV.
+
+One input writes its answer to stdout or ``-o``; several (or a folder, or ``--out-dir``)
+are solved by service/cli/batch.py, one answer file each. Either way the whole answer can
+be kept in files: ``--unmet-csv``, ``--unused-csv`` and ``--summary-json`` beside the
+allocation (service/cli/sheets.py, service/cli/outcome.py).
+"""
 
 from __future__ import annotations
 
 import argparse
+import hashlib
 import json
+import sys
+import uuid
 from typing import Any
 
 from service.cli.files import _load_problem, _Progress, _progress, _timed_post, _write_output
-from service.cli.talk import EXIT_ERROR, EXIT_OK, Post, _failure_exit, _print_problem, _target
-from service.cli.text import _count_of, _num, _table, _verdict_line
+from service.cli.outcome import (
+    Outcome,
+    plan_outcome,
+    reply_outcome,
+    summary_document,
+    summary_line,
+)
+from service.cli.sheets import allocation_csv, unmet_csv, unused_csv
+from service.cli.talk import (
+    EXIT_ERROR,
+    EXIT_OK,
+    EXIT_UNAVAILABLE,
+    CliError,
+    Post,
+    _print_problem,
+    transient_reply,
+)
+from service.cli.text import _num, _table, _verdict_line
+from service.cli.transport import _target
+
+IDEMPOTENCY_HEADER = "Idempotency-Key"
 
 # --- solve ------------------------------------------------------------------------------
 
@@ -56,46 +84,132 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
 
 
 def _check_answer(post: Post, where: str | None, problem: dict[str, Any] | None,
-                  answer: dict[str, Any], progress: _Progress) -> tuple[str, bool]:
-    """(verdict line, valid) from /v1/verify, for the table's last line."""
+                  answer: dict[str, Any], progress: _Progress) -> tuple[str, int]:
+    """(verdict line, exit code) from /v1/verify, for the table's last line.
+
+    The code is 0 for a valid answer, 4 when /v1/verify could not be reached for a
+    transient reason, else 1: an answer the service cannot verify is a fault.
+    """
     if problem is None:
-        return "certificate check: not run (the problem could not be read as JSON here)", False
+        return ("certificate check: not run (the problem could not be read as JSON here)",
+                EXIT_ERROR)
     body = json.dumps({**problem, "answer": answer}, separators=(",", ":")).encode()
-    reply = _timed_post(post, where, "/v1/verify", body, progress)
+    try:
+        reply = _timed_post(post, where, "/v1/verify", body, progress)
+    except CliError as e:
+        print(f"certimatch: {e}", file=sys.stderr)
+        return f"certificate check: not run ({e})", e.code
     verdict = reply.document()
     if reply.status != 200 or verdict is None or not isinstance(verdict.get("valid"), bool):
         _print_problem(reply)
-        return f"certificate check: not run (/v1/verify answered {reply.status})", False
-    return _verdict_line(verdict), verdict["valid"] is True
+        return (f"certificate check: not run (/v1/verify answered {reply.status})",
+                EXIT_UNAVAILABLE if transient_reply(reply) else EXIT_ERROR)
+    return _verdict_line(verdict), EXIT_OK if verdict["valid"] is True else EXIT_ERROR
 
 
-def _cmd_solve(args: argparse.Namespace) -> int:
-    progress = _progress(args)
-    loaded = _load_problem(args, need_dict=args.format == "table")
+def idempotency_key(given: str | None, body: bytes, several: bool) -> str:
+    """The key of one solve: a fresh UUID, the one given, or (several inputs) one per body.
+
+    Reused across the retries of that solve, so the service records it once. With several
+    inputs a given KEY becomes ``KEY-`` and 16 hex digits of the body's SHA-256: distinct
+    per input, and the same again when the same batch is run again.
+    """
+    if given is None:
+        return str(uuid.uuid4())
+    return f"{given}-{hashlib.sha256(body).hexdigest()[:16]}" if several else given
+
+
+def _render(args: argparse.Namespace, post: Post, where: str | None,
+            problem: dict[str, Any] | None, text: str, outcome: Outcome,
+            progress: _Progress) -> str:
+    """The answer in --format; a table whose check fails turns the outcome into 1 (or 4)."""
+    answer = outcome.answer
+    assert answer is not None
+    if args.format == "csv":
+        return allocation_csv(answer, args.spreadsheet_safe)
+    if args.format == "table":
+        line, code = _check_answer(post, where, problem, answer, progress)
+        if code != EXIT_OK:
+            outcome.code, outcome.message = code, line
+        return _answer_table(problem, answer, line)
+    return text
+
+
+def solve_input(args: argparse.Namespace, name: str, post: Post, where: str | None,
+                progress: _Progress, several: bool = False) -> tuple[Outcome, str | None]:
+    """Read, send and judge one input; its outcome and, for a plan, the text to write."""
+    try:
+        loaded = _load_problem(args, need_dict=True, name=name)
+    except CliError as e:
+        return Outcome(name, e.code, message=str(e)), None
     progress.size(len(loaded.body))
     if loaded.note:
         progress.say(loaded.note)
-    post, where = _target(args)
-    reply = _timed_post(post, where, "/v1/solve", loaded.body, progress)
+    key = idempotency_key(args.idempotency_key, loaded.body, several)
+    try:
+        reply = _timed_post(post, where, "/v1/solve", loaded.body, progress,
+                            {IDEMPOTENCY_HEADER: key})
+    except CliError as e:
+        return Outcome(name, e.code, loaded.digest, message=str(e)), None
     answer = reply.document()
     if reply.status != 200 or answer is None or answer.get("status") != "optimal":
-        return _failure_exit(reply)
-    progress.say(f"optimal: objective {_num(answer.get('objective'))}, "
-                 f"{_num(answer.get('flow_value'))} units routed, "
-                 f"{_count_of(len(answer.get('unmet', [])), 'sink')} short")
-    code = EXIT_OK
-    if args.format == "csv":
-        from service.cli.tables import allocation_csv
+        return reply_outcome(name, loaded.digest, reply), None
+    outcome = plan_outcome(name, loaded.digest, loaded.problem, answer)
+    return outcome, _render(args, post, where, loaded.problem, reply.text, outcome, progress)
 
-        text = allocation_csv(answer)
-    elif args.format == "table":
-        line, valid = _check_answer(post, where, loaded.problem, answer, progress)
-        text = _answer_table(loaded.problem, answer, line)
-        # An answer the service itself cannot verify is a fault, not a result to act on.
-        code = EXIT_OK if valid else EXIT_ERROR
-    else:
-        text = reply.text
+
+def _write_summary(path: str | None, outcomes: list[Outcome]) -> None:
+    if path is not None:
+        doc = summary_document(outcomes)
+        _write_output(json.dumps(doc, indent=2, ensure_ascii=False), path)
+
+
+def _write_plan_files(args: argparse.Namespace, outcome: Outcome, text: str) -> None:
+    """The answer (stdout or -o), then the unmet and unused sheets, each whole."""
     _write_output(text, args.output)
     if args.output not in (None, "-"):
-        progress.say(f"wrote {args.format} to {args.output}")
-    return code
+        outcome.files["answer"] = args.output
+    if args.unmet_csv is not None:
+        _write_output(unmet_csv(((None, r) for r in outcome.unmet), args.spreadsheet_safe),
+                      args.unmet_csv)
+        outcome.files["unmet_csv"] = args.unmet_csv
+    if args.unused_csv is not None:
+        _write_output(unused_csv(((None, r) for r in outcome.unused), args.spreadsheet_safe),
+                      args.unused_csv)
+        outcome.files["unused_csv"] = args.unused_csv
+
+
+def _solve_one(args: argparse.Namespace, name: str) -> int:
+    """One input: the answer to stdout or -o, the problem document to stderr on failure."""
+    progress = _progress(args)
+    try:
+        post, where = _target(args)
+    except CliError as e:
+        outcome, text = Outcome(name, e.code, message=str(e)), None
+    else:
+        outcome, text = solve_input(args, name, post, where, progress)
+    if text is None:
+        if outcome.reply is not None:
+            _print_problem(outcome.reply)   # stderr holds the service's document alone
+        else:
+            print(f"certimatch: {outcome.message}", file=sys.stderr)
+        _write_summary(args.summary_json, [outcome])
+        return outcome.code
+    try:
+        _write_plan_files(args, outcome, text)
+    except CliError as e:
+        outcome.code, outcome.message = e.code, str(e)
+        print(f"certimatch: {e}", file=sys.stderr)
+    _write_summary(args.summary_json, [outcome])
+    if not args.quiet:
+        print(f"certimatch: {summary_line(outcome)}", file=sys.stderr, flush=True)
+    return outcome.code
+
+
+def _cmd_solve(args: argparse.Namespace) -> int:
+    from service.cli.batch import _expand_inputs, _solve_batch
+
+    inputs, folders = _expand_inputs(args.file)
+    if args.out_dir is None and len(inputs) == 1 and not folders:
+        return _solve_one(args, inputs[0])
+    return _solve_batch(args, inputs, folders)

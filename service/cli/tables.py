@@ -1,4 +1,4 @@
-"""CSV in and out for the command line: a cost table becomes a problem, an answer a sheet.
+"""CSV in for the command line: a cost table becomes a problem (service/cli/sheets.py: out).
 
 The cost table is the shape a spreadsheet already has::
 
@@ -25,18 +25,19 @@ from __future__ import annotations
 import csv
 import io
 import math
-from collections.abc import Iterable, Mapping, Sequence
+import re
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from service.report.style import format_number
+#: A number as a CSV cell may write it: optional sign, ASCII digits, an optional dot
+#: fraction and exponent. Python's own int() and float() also take "1_000", "١٢" (other
+#: scripts' digits) and "infinity", which a sheet never means as a number.
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?", re.ASCII)
+_NOT_FINITE = frozenset({"nan", "inf", "infinity"})
 
-ALLOCATION_COLUMNS = ("from", "to", "flow", "cost")
-
-#: First characters that make a spreadsheet read a cell as a formula (OWASP, "CSV
-#: Injection"); ids come from whoever filed the ticket, so they are defused on the way out.
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
-
+#: Separators a table may be written with, and their names in a message.
+_DELIMITERS = {",": "','", ";": "';'", "\t": "tabs", "|": "'|'"}
 
 class TableError(ValueError):
     """A cost table that cannot be read; the message names the line and the column."""
@@ -64,25 +65,23 @@ class CostTable:
         return len(self.problem["sources"]), len(self.problem["sinks"])
 
 
-def spreadsheet_text(text: str) -> str:
-    """``text`` for a spreadsheet cell, with a formula-like start defused by a quote."""
-    return "'" + text if text.startswith(_FORMULA_START) else text
-
-
 def _where(line: int, column: int) -> str:
     return f"line {line}, column {column}"
 
 
 def _number(text: str, line: int, column: int) -> int | float:
+    if not _NUMBER.fullmatch(text):
+        if text.lstrip("+-").lower() in _NOT_FINITE:
+            raise TableError(f"{_where(line, column)}: {text!r} is not a finite number")
+        hint = ("; write decimals with a dot" if "," in text else
+                "; write it without digit separators" if "_" in text else "")
+        raise TableError(f"{_where(line, column)}: {text!r} is not a number{hint}")
     try:
-        return int(text)
-    except ValueError:
-        pass
-    try:
+        if not any(c in text for c in ".eE"):
+            return int(text)
         value = float(text)
-    except ValueError:
-        hint = "; write decimals with a dot" if "," in text else ""
-        raise TableError(f"{_where(line, column)}: {text!r} is not a number{hint}") from None
+    except ValueError:       # more digits than int() converts (sys.get_int_max_str_digits)
+        raise TableError(f"{_where(line, column)}: {text!r} has too many digits") from None
     if not math.isfinite(value):
         raise TableError(f"{_where(line, column)}: {text!r} is not a finite number")
     return value
@@ -108,12 +107,47 @@ def _rows(text: str, delimiter: str) -> Iterable[tuple[int, list[str]]]:
         raise TableError(f"line {reader.line_num}: {e}") from None
 
 
+def _cells(line: str, delimiter: str) -> int:
+    try:
+        return len(next(csv.reader([line], delimiter=delimiter)))
+    except (csv.Error, StopIteration):
+        return 0
+
+
+def delimiter_hint(text: str, delimiter: str) -> str | None:
+    """Which separator the first row looks written with, when it is not ``delimiter``.
+
+    The first non-blank line is split by every separator of ``_DELIMITERS``; one that
+    gives at least two cells and more than ``delimiter`` does is named.
+    """
+    first = next((line for line in text.splitlines() if line.strip()), "")
+    have = _cells(first, delimiter)
+    counts = {d: _cells(first, d) for d in _DELIMITERS if d != delimiter}
+    best = max(counts, key=lambda d: counts[d], default=None)
+    if best is None or counts[best] < 2 or counts[best] <= have:
+        return None
+    option = "tab" if best == "\t" else best
+    return (f"the first row looks separated by {_DELIMITERS[best]}, not by "
+            f"{_DELIMITERS.get(delimiter, repr(delimiter))}: give --delimiter '{option}'")
+
+
 def read_cost_table(text: str, layout: TableLayout | None = None) -> CostTable:
     """Read a CSV cost table (see the module docstring) into a JSON problem.
 
-    Raises TableError naming the line and column of the first thing that is wrong.
+    Raises TableError naming the line and column of the first thing that is wrong, and
+    the separator the table looks written with when it is not the one given.
     """
     layout = layout or TableLayout()
+    try:
+        return _read_cost_table(text, layout)
+    except TableError as e:
+        hint = delimiter_hint(text, layout.delimiter)
+        if hint is None:
+            raise
+        raise TableError(f"{e}; {hint}") from None
+
+
+def _read_cost_table(text: str, layout: TableLayout) -> CostTable:
     rows = iter(_rows(text, layout.delimiter))
     try:
         header_line, header = next(rows)
@@ -195,14 +229,3 @@ def _read_sink_row(label: str, layout: TableLayout, cells: Sequence[str], line: 
                 raise TableError(f"{_where(line, k + 1)}: a penalty must be >= 0, "
                                  f"got {cells[k]!r}")
             sink["penalty"] = penalty
-
-
-def allocation_csv(answer: Mapping[str, Any]) -> str:
-    """The allocation as CSV: a header row, then ``from,to,flow,cost`` per arc with flow."""
-    out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(ALLOCATION_COLUMNS)
-    for row in answer.get("allocation", []):
-        writer.writerow([spreadsheet_text(str(row["from"])), spreadsheet_text(str(row["to"])),
-                         format_number(row["flow"]), format_number(row.get("cost", ""))])
-    return out.getvalue()

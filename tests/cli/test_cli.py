@@ -15,7 +15,7 @@ from typing import Any
 
 import pytest
 
-from service.cli import files, main, serve, talk
+from service.cli import files, main, serve, talk, transport
 from service.cli.demo import DEMO_FILES, demo_problem
 
 DEMO_DIR = Path(__file__).resolve().parents[2] / "service" / "demo"
@@ -33,9 +33,10 @@ def _run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[int, str, str]
     return code, out, err
 
 
-def _solve_local(capsys: pytest.CaptureFixture[str], path: str) -> dict[str, Any]:
+def _solve_local(capsys: pytest.CaptureFixture[str], path: str, expect: int = 0
+                 ) -> dict[str, Any]:
     code, out, err = _run(capsys, "solve", path, "--local")
-    assert code == 0, err
+    assert code == expect, err
     answer: dict[str, Any] = json.loads(out)
     return answer
 
@@ -44,7 +45,9 @@ def _solve_local(capsys: pytest.CaptureFixture[str], path: str) -> dict[str, Any
 def test_solve_demo_file_exits_0_with_answer_on_stdout(capsys, name):
     code, out, err = _run(capsys, "solve", str(DEMO_DIR / name), "--local")
     assert code == 0, err
-    assert err == ""
+    # stderr: the one-line summary alone; every ticket and van left waiting is soft.
+    assert err.count("\n") == 1 and err.endswith("-> exit 0\n")
+    assert f"{name}: all hard demand met; objective " in err
     answer = json.loads(out)
     assert answer["status"] == "optimal"
     assert answer["objective"] == answer["certificate"]["dual_objective"]
@@ -113,15 +116,16 @@ def test_rejected_unmet_demand_exits_2_with_the_witness_on_stderr(capsys, tmp_pa
     assert doc["witness"]["shortfall"] == 1
 
 
-def test_same_shortage_without_reject_is_optimal(capsys, tmp_path):
-    # Control for the test above: the exit code follows the policy, not the shortage.
+def test_same_shortage_without_reject_is_a_plan_with_exit_3(capsys, tmp_path):
+    # Control for the test above: without reject the shortage is a plan (written), and
+    # exit 3 says that hard demand is left unmet in it.
     problem = {
         "sources": [{"id": "van-a", "supply": 1}],
         "sinks": [{"id": "stop-1"}, {"id": "stop-2"}],
         "costs": [[3, 4]],
     }
-    answer = _solve_local(capsys, _write(tmp_path, problem))
-    assert answer["unmet"] == [{"id": "stop-2", "amount": 1}]
+    answer = _solve_local(capsys, _write(tmp_path, problem), expect=3)
+    assert answer["unmet"][0]["id"] == "stop-2" and answer["unmet"][0]["amount"] == 1
 
 
 def test_malformed_file_exits_1_with_the_problem_document(capsys, tmp_path):
@@ -153,7 +157,7 @@ def test_missing_file_exits_1(capsys, tmp_path):
     assert "cannot read" in err
 
 
-def test_unreachable_server_exits_1(capsys):
+def test_unreachable_server_exits_4(capsys):
     with socket.socket() as s:  # a port that was free a moment ago: nothing listens there
         s.bind(("127.0.0.1", 0))
         port = s.getsockname()[1]
@@ -161,9 +165,9 @@ def test_unreachable_server_exits_1(capsys):
     code, out, err = _run(
         capsys, "solve", path, "--url", f"http://127.0.0.1:{port}", "--timeout", "5"
     )
-    assert code == 1
+    assert code == 4
     assert out == ""
-    assert "cannot reach" in err
+    assert "cannot reach" in err and "Connection refused" in err
 
 
 def test_url_defaults_to_the_environment(capsys, monkeypatch):
@@ -172,7 +176,7 @@ def test_url_defaults_to_the_environment(capsys, monkeypatch):
         port = s.getsockname()[1]
     monkeypatch.setenv("CERTIMATCH_URL", f"http://127.0.0.1:{port}")
     code, _, err = _run(capsys, "solve", str(DEMO_DIR / "repair_tickets.json"))
-    assert code == 1
+    assert code == 4
     assert f"127.0.0.1:{port}" in err
 
 
@@ -323,7 +327,7 @@ def test_csv_column_named_supply_can_be_a_sink(capsys, tmp_path):
     assert [(r["to"]) for r in answer["allocation"]] == ["ticket-1"]
     code, out, _ = _run(capsys, "solve", _csv(tmp_path, table), "--local",
                         "--supply-column", "", "--format", "csv")
-    assert code == 0
+    assert code == 3          # two hard sinks now, and tech-a has one unit of supply
     assert "tech-a,supply,1,3" in out.splitlines()
 
 
@@ -422,21 +426,21 @@ def test_format_table_for_a_json_maximisation(capsys, tmp_path):
 
 def test_table_exits_1_when_the_check_of_the_answer_fails(capsys, tmp_path, monkeypatch):
     # Simulates a server whose /v1/verify rejects its own answer: not a result to act on.
-    real = talk._local_post
+    real = transport._local_post
 
     def lying_verifier() -> talk.Post:
         post = real()
 
-        def answer(path: str, body: bytes) -> talk.Reply:
+        def answer(path: str, body: bytes, headers: Any = None) -> talk.Reply:
             if path == "/v1/verify":
                 return talk.Reply(200, "application/json", json.dumps(
                     {"valid": False, "checks": [{"name": "objective", "passed": False,
                                                  "detail": "objective is 1, recomputed 2"}]}))
-            return post(path, body)
+            return post(path, body, headers)
 
         return answer
 
-    monkeypatch.setattr(talk, "_local_post", lying_verifier)
+    monkeypatch.setattr(transport, "_local_post", lying_verifier)
     code, out, _ = _run(capsys, "solve", _csv(tmp_path), "--local", "--format", "table")
     assert code == 1
     assert out.splitlines()[-1] == ("certificate check: INVALID (1 of 1 checks failed: "
@@ -447,9 +451,10 @@ def test_objective_option_replaces_the_json_field(capsys, tmp_path):
     problem = {"sources": [{"id": "crew-a"}], "sinks": [{"id": "job-1"}, {"id": "job-2"}],
                "costs": [[3, 8]], "objective": "min"}
     path = _write(tmp_path, problem)
-    assert _solve_local(capsys, path)["allocation"][0]["to"] == "job-1"
+    # One crew for two hard jobs: a plan with one job unmet, exit 3 either way.
+    assert _solve_local(capsys, path, expect=3)["allocation"][0]["to"] == "job-1"
     code, out, _ = _run(capsys, "solve", path, "--local", "--objective", "max")
-    assert code == 0
+    assert code == 3
     answer = json.loads(out)
     assert answer["allocation"][0]["to"] == "job-2"
     assert answer["certificate"]["negated"] is True
@@ -493,8 +498,12 @@ def test_output_into_a_missing_folder_exits_1(capsys, tmp_path):
 
 # --- progress -------------------------------------------------------------------------
 
-def test_small_solve_is_silent_on_stderr(capsys, tmp_path):
+def test_small_solve_says_one_line_on_stderr_and_nothing_when_quiet(capsys, tmp_path):
     _, _, err = _run(capsys, "solve", _csv(tmp_path), "--local")
+    assert err.splitlines() == [
+        f"certimatch: {tmp_path / 'costs.csv'}: all hard demand met; objective 92, 3 units "
+        "routed, 1 unit unmet on 1 sink, 0 units of supply unused -> exit 0"]
+    _, _, err = _run(capsys, "solve", _csv(tmp_path), "--local", "--quiet")
     assert err == ""
 
 
@@ -507,7 +516,9 @@ def test_progress_lines_on_request(capsys, tmp_path):
     assert "2 sources x 3 sinks, 4 of 6 pairs allowed" in lines[0]
     assert "to /v1/solve in this process" in lines[1]
     assert lines[2].startswith("certimatch: answered 200 in ")
-    assert lines[3] == "certimatch: optimal: objective 92, 3 units routed, 1 sink short"
+    assert lines[3].startswith("certimatch: ") and lines[3].endswith(
+        ": all hard demand met; objective 92, 3 units routed, 1 unit unmet on 1 sink, "
+        "0 units of supply unused -> exit 0")
 
 
 def test_big_bodies_get_progress_unless_quiet(capsys, tmp_path, monkeypatch):
@@ -524,7 +535,7 @@ def test_progress_names_the_url(capsys, tmp_path):
         port = s.getsockname()[1]
     code, _, err = _run(capsys, "solve", _csv(tmp_path), "--url", f"http://127.0.0.1:{port}/",
                         "--timeout", "5", "--progress")
-    assert code == 1
+    assert code == 4
     assert f"posting 213 bytes to http://127.0.0.1:{port}/v1/solve" in err
 
 
@@ -550,7 +561,10 @@ def test_solve_help_explains_csv_formats_and_exit_codes(capsys):
     assert code == 0
     for words in ("CSV cost tables", "empty cell", "--supply-column", "--demand-row",
                   "--penalty-row", "--format {json,table,csv}", "-o FILE", "--quiet",
-                  "--unmet-demand {minimize,reject}", "exit codes: 0 optimal; 2"):
+                  "--unmet-demand {minimize,reject}", "--unmet-csv FILE",
+                  "--summary-json FILE", "--out-dir DIR", "--no-spreadsheet-safe",
+                  "--token TOKEN", "--token-file FILE", "CERTIMATCH_TOKEN", "--retries N",
+                  "--idempotency-key KEY", "exit codes (solve"):
         assert words in out, words
 
 

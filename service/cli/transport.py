@@ -1,0 +1,106 @@
+"""The way to the service: over HTTP (with a bearer token and retries) or in this process."""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import os
+import sys
+from collections.abc import Callable, Mapping
+
+import requests
+
+from service.cli.credentials import Secret, resolve_token
+from service.cli.retries import RetryPolicy, retrying
+from service.cli.talk import (
+    DEFAULT_URL,
+    URL_ENV,
+    CliError,
+    Post,
+    Reply,
+    Unreachable,
+    _reason,
+    shown_url,
+)
+
+#: The policy the command line uses; tests replace it to inject the sleep and the dice.
+DEFAULT_POLICY = RetryPolicy()
+
+
+def _http_post(base_url: str, timeout: float, token: Secret | None = None) -> Post:
+    """POST to ``base_url``: :class:`Unreachable` when no HTTP answer comes back at all."""
+    base = base_url.rstrip("/")
+    shown = shown_url(base)
+    fixed = {"Content-Type": "application/json"}
+    if token is not None:
+        fixed["Authorization"] = f"Bearer {token.reveal()}"
+
+    def post(path: str, body: bytes, headers: Mapping[str, str] | None = None) -> Reply:
+        try:
+            r = requests.post(base + path, data=body, timeout=timeout,
+                             headers={**fixed, **(headers or {})})
+        except requests.exceptions.SSLError as e:
+            # A certificate the client refuses is refused again on the next attempt.
+            raise CliError(f"cannot reach {shown}: TLS failed ({_reason(e)})") from None
+        except requests.Timeout:
+            raise Unreachable(f"cannot reach {shown}: no answer within {timeout:g} s "
+                              "(--timeout)") from None
+        except (requests.ConnectionError, requests.exceptions.ChunkedEncodingError) as e:
+            raise Unreachable(f"cannot reach {shown}: {_reason(e)}") from None
+        except requests.RequestException as e:
+            # A malformed URL and the like: no retry makes it right.
+            raise CliError(f"cannot reach {shown}: {_reason(e)}") from None
+        # Decoded here rather than by requests, which would guess a charset for JSON.
+        return Reply(r.status_code, r.headers.get("Content-Type", ""),
+                     r.content.decode("utf-8", errors="replace"), r.headers.get("Retry-After"))
+
+    return post
+
+
+def _local_post() -> Post:
+    # Imported here so that `serve` and remote `solve` never pay for numpy and scipy.
+    from service.app import create_app
+
+    try:
+        # In this process nobody else can call the app: tokens configured for a server in
+        # the environment (CERTIMATCH_TOKENS...) are left out rather than asked for.
+        client = create_app({"TOKENS": None, "TOKENS_FILE": None}).test_client()
+    except ValueError as e:  # a bad CERTIMATCH_* setting in the environment
+        raise CliError(str(e)) from e
+
+    def post(path: str, body: bytes, headers: Mapping[str, str] | None = None) -> Reply:
+        r = client.post(path, data=body, content_type="application/json",
+                        headers=dict(headers or {}))
+        return Reply(r.status_code, r.content_type or "", r.get_data(as_text=True),
+                     r.headers.get("Retry-After"))
+
+    return post
+
+
+def _say_unless_quiet(args: argparse.Namespace) -> Callable[[str], None]:
+    quiet = bool(getattr(args, "quiet", False))
+
+    def note(message: str) -> None:
+        if not quiet:
+            print(f"certimatch: {message}", file=sys.stderr, flush=True)
+
+    return note
+
+
+def _target(args: argparse.Namespace) -> tuple[Post, str | None]:
+    """The way to the service, and its URL for progress lines (None: this process).
+
+    In this process there is no connection to lose, so nothing is retried: a 503 with
+    Retry-After from the app itself ends the command at once with exit 4.
+    """
+    if args.local:
+        return _local_post(), None
+    base = (args.url or os.environ.get(URL_ENV) or DEFAULT_URL).rstrip("/")
+    retries = getattr(args, "retries", DEFAULT_POLICY.retries)
+    policy = dataclasses.replace(DEFAULT_POLICY, retries=retries)
+    post = _http_post(base, args.timeout, resolve_token(args))
+    return retrying(post, policy, _say_unless_quiet(args)), shown_url(base)
+
+
+def _poster(args: argparse.Namespace) -> Post:
+    return _target(args)[0]
