@@ -89,7 +89,7 @@ class _Handler(BaseHTTPRequestHandler):
 @pytest.fixture
 def stub(request: pytest.FixtureRequest) -> Iterator[Stub]:
     server = Stub(request.param)
-    thread = threading.Thread(target=server.serve_forever, daemon=True)
+    thread = threading.Thread(target=server.serve_forever, args=(0.05,), daemon=True)
     thread.start()
     try:
         yield server
