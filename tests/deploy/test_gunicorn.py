@@ -6,12 +6,14 @@ Nothing here asserts on time.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import signal
 import socket
 import subprocess
 import sys
+import threading
 import time
 from collections.abc import Iterator
 from concurrent.futures import ThreadPoolExecutor
@@ -20,7 +22,7 @@ from typing import Any
 
 import pytest
 import requests
-from servers import Gunicorn, free_port
+from servers import GOOD, GOOD_OBJECTIVE, Gunicorn, free_port, wait_for
 
 from service.cli import main
 from service.cli.demo import DEMO_FILES, demo_problem
@@ -179,3 +181,126 @@ def test_cli_demo_refuses_a_busy_port(server, capsys):
     _, err = capsys.readouterr()
     assert code == 1
     assert "in use" in err
+
+
+# --- the command line against a token-protected server ----------------------------------
+
+TOKEN = "dispatch-bot-token-0123456789abcdef"
+
+
+@pytest.fixture(scope="module")
+def guarded(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Gunicorn]:
+    with Gunicorn(tmp_path_factory.mktemp("guarded"), workers=1,
+                  env={"CERTIMATCH_TOKENS": TOKEN}) as srv:
+        yield srv
+
+
+@pytest.fixture
+def good_file(tmp_path: Path) -> str:
+    path = tmp_path / "good.json"
+    path.write_text(json.dumps(GOOD))
+    return str(path)
+
+
+@pytest.fixture
+def no_client_token(monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.delenv("CERTIMATCH_TOKEN", raising=False)
+
+
+def test_cli_without_a_token_gets_401_and_exit_1(guarded, good_file, capsys, no_client_token):
+    code = main(["solve", good_file, "--url", guarded.base])
+    out, err = capsys.readouterr()
+    assert code == 1
+    assert out == ""
+    doc = json.loads(err)
+    assert doc["status"] == 401 and doc["type"] == "urn:certimatch:problem:unauthorized"
+
+
+@pytest.mark.parametrize("how", ["option", "environment", "file"])
+def test_cli_reaches_a_token_protected_server(guarded, good_file, capsys, tmp_path,
+                                              monkeypatch, no_client_token, how):
+    argv = ["solve", good_file, "--url", guarded.base]
+    if how == "option":
+        argv += ["--token", TOKEN]
+    elif how == "environment":
+        monkeypatch.setenv("CERTIMATCH_TOKEN", TOKEN)
+    else:
+        path = tmp_path / "token"
+        path.write_text(f"# certimatch bearer token\n{TOKEN}\n")
+        path.chmod(0o600)
+        argv += ["--token-file", str(path)]
+    code = main(argv)
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    assert json.loads(out)["objective"] == GOOD_OBJECTIVE
+    assert TOKEN not in out + err
+
+
+def test_cli_with_a_wrong_token_exits_1_without_showing_it(guarded, good_file, capsys,
+                                                           no_client_token):
+    wrong = "not-the-token-but-long-enough-0123"
+    code = main(["solve", good_file, "--url", guarded.base, "--token", wrong, "--progress"])
+    out, err = capsys.readouterr()
+    assert code == 1
+    assert "the bearer token is not accepted" in err
+    assert wrong not in out + err
+
+
+def test_cli_verify_and_table_use_the_token(guarded, good_file, capsys, tmp_path,
+                                            monkeypatch, no_client_token):
+    monkeypatch.setenv("CERTIMATCH_TOKEN", TOKEN)
+    # --format table calls /v1/verify after /v1/solve: both need the token.
+    code = main(["solve", good_file, "--url", guarded.base, "--format", "table"])
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    assert out.splitlines()[-1].startswith("certificate check: VALID")
+    answer = tmp_path / "answer.json"
+    assert main(["solve", good_file, "--url", guarded.base, "-o", str(answer)]) == 0
+    capsys.readouterr()
+    code = main(["verify", good_file, "--answer", str(answer), "--url", guarded.base])
+    out, _ = capsys.readouterr()
+    assert code == 0
+    assert json.loads(out)["valid"] is True
+
+
+# --- certimatch demo and SIGTERM --------------------------------------------------------
+
+def _lines_of(stream: Any, into: list[str]) -> threading.Thread:
+    def read() -> None:
+        for raw in iter(stream.readline, b""):
+            into.append(raw.decode(errors="replace"))
+    reader = threading.Thread(target=read, daemon=True)
+    reader.start()
+    return reader
+
+
+def test_cli_demo_stops_its_server_on_sigterm():
+    port = free_port()
+    proc = subprocess.Popen(_cli("demo", "--port", str(port)), cwd=ROOT,
+                            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
+                            start_new_session=True)
+    printed: list[str] = []
+    reader = _lines_of(proc.stdout, printed)
+    try:
+        wait_for("the demo serving", lambda: proc.poll() is not None or any(
+            "server running at" in line for line in printed), DEMO_SECONDS)
+        assert proc.poll() is None, "".join(printed)
+        assert _accepts(port)
+        proc.send_signal(signal.SIGTERM)           # to the demo alone, not its group
+        code = proc.wait(timeout=STOP_SECONDS + 10)
+        assert code == 0, "".join(printed)
+        # The demo waited for gunicorn's master, which reaps its workers before it exits;
+        # allow the kernel a bounded moment to close the listening socket. Checked before
+        # the clean-up below, which would end a server the demo left behind.
+        wait_for("the port freed", lambda: not _accepts(port), STOP_SECONDS)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.wait()
+        # A gunicorn the demo failed to stop is in its process group: end it too, so a
+        # failing test leaves nothing behind.
+        with contextlib.suppress(ProcessLookupError):
+            os.killpg(proc.pid, signal.SIGKILL)
+        reader.join(timeout=10)
+        assert proc.stdout is not None
+        proc.stdout.close()
