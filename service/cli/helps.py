@@ -45,8 +45,8 @@ examples:
 
 {EXIT_CODES}
 "certimatch COMMAND --help" explains one command. Without --url, solve and verify
-use ${URL_ENV}, else {DEFAULT_URL}; a bearer token comes from --token-file FILE,
-${TOKEN_ENV} or --token TOKEN.
+use ${URL_ENV}, else {DEFAULT_URL}. The bearer token comes from
+--token-file FILE, ${TOKEN_ENV} or --token TOKEN (the last is visible in `ps`).
 """
 
 CSV_HELP = """\
@@ -66,17 +66,16 @@ CSV cost tables (FILE ending in .csv, or --input csv):
 
 TALK_HELP = f"""\
 server, token and retries:
-  --url, else ${URL_ENV}, else {DEFAULT_URL}; --local answers in this process
-  (no server, no token, no retries). The bearer token is --token TOKEN or
-  --token-file FILE (its first line that is not blank or a # comment; a file
+  --url, else ${URL_ENV}, else {DEFAULT_URL}; --local answers in this
+  process (no server, no token, no retries). The bearer token is --token TOKEN or
+  --token-file FILE (its first line that is neither blank nor a # comment; a file
   every user may read is refused), else ${TOKEN_ENV}. A --token on the command
   line can be seen by other users of the machine in `ps`: prefer the file or the
   variable. The token is never printed.
-  Transient failures are retried --retries times (0: never) after waits of
-  full jitter, a random time up to {BASE_SECONDS:g} s doubling per retry (at most
-  {CAP_SECONDS:g} s), or the server's Retry-After when longer (at most
-  {MAX_WAIT_SECONDS:g} s per wait). A retried solve sends the same Idempotency-Key, so
-  the service records it once.
+  Transient failures are retried --retries times (0: never), after a random wait
+  of up to {BASE_SECONDS:g} s, doubling with each retry up to {CAP_SECONDS:g} s ("full jitter"), or
+  the server's Retry-After when that is longer (at most {MAX_WAIT_SECONDS:g} s per wait). A
+  retried solve sends the same Idempotency-Key, so the service records it once.
 """
 
 SOLVE_EPILOG = CSV_HELP + f"""

@@ -101,7 +101,7 @@ def _add_problem_options(cmd: argparse.ArgumentParser) -> None:
                        help="cell separator, one character or 'tab' (default ,)")
 
 
-def _add_talk_options(cmd: argparse.ArgumentParser) -> None:
+def _add_talk_options(cmd: argparse.ArgumentParser) -> argparse._ArgumentGroup:
     talk = cmd.add_argument_group("server, token and retries")
     where = talk.add_mutually_exclusive_group()
     where.add_argument("--url", help=f"service URL (default: ${URL_ENV} or {DEFAULT_URL})")
@@ -112,6 +112,7 @@ def _add_talk_options(cmd: argparse.ArgumentParser) -> None:
     talk.add_argument("--retries", type=_count, default=DEFAULT_RETRIES, metavar="N",
                       help="retries of a transient failure, 0 for none (%(default)s)")
     _add_token_options(talk)
+    return talk
 
 
 def _add_token_options(group: argparse._ArgumentGroup) -> None:
@@ -164,8 +165,8 @@ def _add_solve(sub: Any, raw: type[argparse.HelpFormatter]) -> None:
                      help="put ' before ids starting with = + - @ ' in CSV output (default: "
                      "on); --no-spreadsheet-safe writes ids exactly")
     _add_chatter_options(solve)
-    _add_talk_options(solve)
-    solve.add_argument("--idempotency-key", type=_key, metavar="KEY",
+    talk = _add_talk_options(solve)
+    talk.add_argument("--idempotency-key", type=_key, metavar="KEY",
                        help="the Idempotency-Key of the solve (default: a new UUID per "
                        "run); with several inputs, KEY-<digest of each input>")
     solve.set_defaults(handler=_cmd_solve)

@@ -35,7 +35,7 @@ OUTCOMES: dict[int, tuple[str, str]] = {
                  "unmet"),
     EXIT_UNAVAILABLE: ("unavailable", "a transient failure outlasted the retries: the "
                        "server was unreachable or overloaded; try again later"),
-    EXIT_ERROR: ("error", "a permanent failure: invalid input, authentication, an "
+    EXIT_ERROR: ("error", "anything permanent: invalid input, authentication, an "
                  "unreadable file or the like; retrying will not help"),
 }
 

@@ -568,6 +568,37 @@ def test_solve_help_explains_csv_formats_and_exit_codes(capsys):
         assert words in out, words
 
 
+#: The words each exit code is known by, in the README table, --help and the summary JSON.
+EXIT_WORDS = {0: "all hard demand is met", 2: "refused as infeasible",
+              3: "some hard demand is left unmet", 4: "transient failure outlasted the retries",
+              1: "anything permanent"}
+
+
+def _readme_exit_rows() -> dict[int, str]:
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text()
+    section = readme.split("## Command line", 1)[1].split("\n## ", 1)[0]
+    return {int(m.group(1)): m.group(2) for m in re.finditer(r"^\| (\d) \| (.*)$", section,
+                                                             re.MULTILINE)}
+
+
+def test_one_exit_code_table_in_readme_help_and_summary(capsys):
+    from service.cli.outcome import OUTCOMES
+
+    rows = _readme_exit_rows()
+    assert sorted(rows) == [0, 1, 2, 3, 4]
+    code, out, _ = _run(capsys, "--help")
+    assert code == 0
+    help_lines = {int(m.group(1)): m.group(2)
+                  for m in re.finditer(r"^  (\d)  (.*)$", out, re.MULTILINE)}
+    assert sorted(help_lines) == [0, 1, 2, 3, 4]
+    for n, words in EXIT_WORDS.items():
+        assert words in rows[n], n
+        assert words in help_lines[n], n
+        assert words in OUTCOMES[n][1], n
+    assert "1 > 4 > 2 > 3 > 0" in out
+    assert "Retry-After" in out and "--timeout" in out       # "transient", defined
+
+
 def test_report_help_explains_the_page(capsys):
     code, out, _ = _run(capsys, "report", "--help")
     assert code == 0
