@@ -106,6 +106,17 @@ def _load_problem(args: argparse.Namespace, need_dict: bool, name: str | None = 
     return loaded
 
 
+def _problem_of(loaded: _Problem) -> dict[str, Any] | None:
+    """The problem as a dict, parsed from the body now if it was not read as one."""
+    if loaded.problem is None:
+        try:
+            parsed = _parse_json(loaded.body)
+        except ValueError:
+            return None
+        loaded.problem = parsed if isinstance(parsed, dict) else None
+    return loaded.problem
+
+
 def _read_problem(args: argparse.Namespace, need_dict: bool, name: str, raw: bytes
                   ) -> _Problem:
     overrides = _overrides(args)

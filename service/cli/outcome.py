@@ -200,8 +200,3 @@ def summary_document(outcomes: list[Outcome]) -> dict[str, Any]:
     return {"summary_version": SUMMARY_VERSION, "exit_code": code, "outcome": kind,
             "meaning": meaning, "inputs": [summary_record(o) for o in outcomes]}
 
-
-def exit_table() -> str:
-    """The exit codes as text lines, for --help (the README has the same table)."""
-    order = (EXIT_OK, EXIT_NEGATIVE, EXIT_SHORT, EXIT_UNAVAILABLE, EXIT_ERROR)
-    return "\n".join(f"  {c}  {OUTCOMES[c][1]}" for c in order)

@@ -15,7 +15,14 @@ import sys
 import uuid
 from typing import Any
 
-from service.cli.files import _load_problem, _Progress, _progress, _timed_post, _write_output
+from service.cli.files import (
+    _load_problem,
+    _problem_of,
+    _Progress,
+    _progress,
+    _timed_post,
+    _write_output,
+)
 from service.cli.outcome import (
     Outcome,
     plan_outcome,
@@ -135,11 +142,26 @@ def _render(args: argparse.Namespace, post: Post, where: str | None,
     return text
 
 
+def _needs_problem(args: argparse.Namespace, answer: dict[str, Any]) -> bool:
+    """Whether the problem must be read as a dict for this plan (a big body costs time).
+
+    The exit code does not need it (hard unmet is the certificate's hard_shortfall when
+    the rows do not say), but the table, the sheets' demand, supply and hard columns and
+    the summary's soft count do.
+    """
+    if args.format == "table":
+        return True
+    leftovers = answer.get("unmet") or answer.get("unused")
+    files = (args.unmet_csv, args.unused_csv, args.summary_json)
+    return bool(leftovers) and any(f is not None for f in files)
+
+
 def solve_input(args: argparse.Namespace, name: str, post: Post, where: str | None,
                 progress: _Progress, several: bool = False) -> tuple[Outcome, str | None]:
     """Read, send and judge one input; its outcome and, for a plan, the text to write."""
     try:
-        loaded = _load_problem(args, need_dict=True, name=name)
+        # Parsed here only for a table; otherwise only once a plan needs its sinks.
+        loaded = _load_problem(args, need_dict=args.format == "table", name=name)
     except CliError as e:
         return Outcome(name, e.code, message=str(e)), None
     progress.size(len(loaded.body))
@@ -154,8 +176,9 @@ def solve_input(args: argparse.Namespace, name: str, post: Post, where: str | No
     answer = reply.document()
     if reply.status != 200 or answer is None or answer.get("status") != "optimal":
         return reply_outcome(name, loaded.digest, reply), None
-    outcome = plan_outcome(name, loaded.digest, loaded.problem, answer)
-    return outcome, _render(args, post, where, loaded.problem, reply.text, outcome, progress)
+    problem = _problem_of(loaded) if _needs_problem(args, answer) else None
+    outcome = plan_outcome(name, loaded.digest, problem, answer)
+    return outcome, _render(args, post, where, problem, reply.text, outcome, progress)
 
 
 def _write_summary(path: str | None, outcomes: list[Outcome]) -> None:

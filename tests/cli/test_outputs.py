@@ -256,3 +256,17 @@ def test_verify_refuses_two_answers(capsys, tmp_path):
     code, _, err = _run(capsys, "verify", both, "--answer", both, "--local")
     assert code == 1
     assert "already holds" in err
+
+
+def test_hard_unmet_is_counted_from_the_rows_or_taken_from_the_certificate():
+    from service.cli.outcome import hard_unmet
+
+    answer = {"certificate": {"hard_shortfall": 2}}
+    known = [{"amount": 2, "hard": True}, {"amount": 5, "hard": False}]
+    assert hard_unmet(known, answer) == 2
+    unknown = [{"amount": 2, "hard": None}, {"amount": 5, "hard": None}]
+    assert hard_unmet(unknown, answer) == 2                 # the problem was not read
+    # Should the rows and the certificate ever disagree, the shortfall is not hidden.
+    assert hard_unmet([{"amount": 3, "hard": True}], answer) == 3
+    assert hard_unmet([{"amount": 1, "hard": False}], answer) == 2
+    assert hard_unmet([], {"certificate": {"hard_shortfall": 0}}) == 0
