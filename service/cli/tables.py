@@ -15,6 +15,7 @@ The cost table is the shape a spreadsheet already has::
   sink's demand) and a row named ``penalty`` (cost of each unmet unit; empty = hard demand).
   Without them every supply and demand is 1 and every demand is hard. The names can be
   changed, or the feature turned off with an empty name, when a real id collides with them.
+* a table with no source rows is read as a day with no sources (the service decides).
 
 Nothing here touches the network model: the result is an ordinary JSON problem that the
 service checks like any other, so the CSV path cannot accept what the JSON path refuses.
@@ -207,8 +208,9 @@ def _read_cost_table(text: str, layout: TableLayout) -> CostTable:
         table.allowed += sum(c is not None for c in row)
         table.problem["sources"].append(source)
         table.problem["costs"].append(row)
-    if not table.problem["sources"]:
-        raise TableError("the file has no source rows below the first row")
+    # No source rows is a day on which nobody is available: sent as it is, the service
+    # decides (every hard demand then stays unmet). No sinks is refused above instead:
+    # a header of one cell is far more often a table cut with the wrong separator.
     return table
 
 

@@ -345,7 +345,6 @@ def test_csv_column_named_supply_can_be_a_sink(capsys, tmp_path):
     (",t1\ntech-a,1\npenalty,-3\n", "line 3, column 2: a penalty must be >= 0"),
     (",t1,supply\ntech-a,1,\ndemand,1,4\n", "line 3, column 3: the 'demand' row has no supply"),
     (",t1\n,1\n", "line 2, column 1: the row has no source id"),
-    (",t1\n", "no source rows"),
 ])
 def test_csv_mistakes_exit_1_naming_line_and_column(capsys, tmp_path, table, message):
     code, out, err = _run(capsys, "solve", _csv(tmp_path, table), "--local")

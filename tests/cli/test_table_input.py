@@ -99,3 +99,11 @@ def test_a_supply_with_digit_separators_is_refused(capsys, tmp_path):
                         "--local")
     assert code == 1
     assert "line 2, column 3: '1_0' is not a number" in err
+
+
+def test_a_table_without_source_rows_is_a_day_with_no_sources():
+    # Sent as it is: the service decides about an empty day (every hard demand unmet).
+    table = read_cost_table(",ticket-1,ticket-2\ndemand,2,1\npenalty,,30\n")
+    assert table.problem == {"sources": [], "costs": [],
+                             "sinks": [{"id": "ticket-1", "demand": 2},
+                                       {"id": "ticket-2", "demand": 1, "penalty": 30}]}
