@@ -91,11 +91,13 @@ def shown_url(url: str) -> str:
 
 
 _ERRNO = re.compile(r"\[Errno -?\d+\] ([^'\")]+)")
+_QUOTED = re.compile(r"'([^']{3,})'")
 
 
 def _reason(e: Exception) -> str:
     """A short cause of a failed connection: "Connection refused" rather than a chain."""
-    found = _ERRNO.findall(str(e))
+    text = str(e)
+    found = _ERRNO.findall(text) or [q for q in _QUOTED.findall(text) if "<" not in q]
     return found[-1].strip() if found else type(e).__name__
 
 

@@ -249,6 +249,8 @@ def test_connection_reset_is_retried(capsys, problem_file, stub, waits):
     assert json.loads(out)["objective"] == 5
     assert waits == [0.5]
     assert len(stub.seen) == 2
+    # http.client's words for a connection closed before the answer (stdlib).
+    assert "Remote end closed connection without response; retry 1 of 3" in err
 
 
 # --- permanent failures are not retried -------------------------------------------------
