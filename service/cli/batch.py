@@ -64,7 +64,8 @@ def _check_batch(args: argparse.Namespace, inputs: list[str], folders: list[Path
         raise CliError("-o/--output takes the answer of one input; with several, use "
                        "--out-dir DIR")
     if "-" in inputs:
-        raise CliError("- (standard input) cannot be one of several inputs")
+        raise CliError("- (standard input) has no name for an answer file in --out-dir; "
+                       "give it as a file")
     out = Path(args.out_dir)
     if any(out.resolve() == f.resolve() for f in folders):
         raise CliError(f"--out-dir {args.out_dir} is an input folder: the next run would "
