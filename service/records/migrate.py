@@ -14,6 +14,8 @@ from alembic import command
 from alembic.config import Config
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
+from alembic.script.revision import ResolutionError
+from alembic.util import CommandError
 from sqlalchemy import Engine
 from sqlalchemy.exc import DBAPIError
 
@@ -51,7 +53,11 @@ class SchemaStatus:
             return ("the decision store has no schema yet: run "
                     f"`{UPGRADE_COMMAND}` to create it (revision {self.head})")
         script = ScriptDirectory.from_config(alembic_config())
-        if script.get_revision(self.current) is None:
+        try:
+            known = script.get_revision(self.current) is not None
+        except (CommandError, ResolutionError):
+            known = False
+        if not known:
             return (f"the decision store's schema is at revision {self.current}, which "
                     f"this version does not know (its newest is {self.head}): run a newer "
                     "certimatch against this database")

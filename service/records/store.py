@@ -54,9 +54,11 @@ IDEMPOTENCY_TTL = timedelta(hours=24)
 LOCK_TIMEOUT_S = 30
 
 
-def make_engine(url: str, **options: Any) -> Engine:
+def make_engine(url: str, *, lock_timeout_s: float = LOCK_TIMEOUT_S,
+                **options: Any) -> Engine:
     """An engine for the store's URL, set up for the rules above; PostgreSQL goes
-    through psycopg 3 whatever driver the URL names."""
+    through psycopg 3 whatever driver the URL names. ``lock_timeout_s`` bounds the wait
+    for the log lock (then the store answers StoreUnavailable)."""
     parsed = make_url(url)
     if parsed.get_backend_name() == "postgresql":
         parsed = parsed.set(drivername="postgresql+psycopg")
@@ -68,7 +70,7 @@ def make_engine(url: str, **options: Any) -> Engine:
         @event.listens_for(engine, "connect")
         def _pg_timeouts(dbapi_connection: Any, record: Any) -> None:
             with dbapi_connection.cursor() as cursor:
-                cursor.execute(f"SET lock_timeout = '{LOCK_TIMEOUT_S}s'")
+                cursor.execute(f"SET lock_timeout = '{int(lock_timeout_s * 1000)}ms'")
             dbapi_connection.commit()
 
         return engine
@@ -78,7 +80,7 @@ def make_engine(url: str, **options: Any) -> Engine:
     if parsed.database and parsed.database != ":memory:":
         Path(parsed.database).parent.mkdir(parents=True, exist_ok=True)
     args = options.setdefault("connect_args", {})
-    args.setdefault("timeout", LOCK_TIMEOUT_S)
+    args.setdefault("timeout", lock_timeout_s)
     engine = create_engine(parsed, **options)
 
     @event.listens_for(engine, "connect")
@@ -90,7 +92,7 @@ def make_engine(url: str, **options: Any) -> Engine:
         cursor.execute("PRAGMA journal_mode=WAL")
         cursor.execute("PRAGMA synchronous=FULL")
         cursor.execute("PRAGMA foreign_keys=ON")
-        cursor.execute(f"PRAGMA busy_timeout={LOCK_TIMEOUT_S * 1000}")
+        cursor.execute(f"PRAGMA busy_timeout={int(lock_timeout_s * 1000)}")
         cursor.close()
 
     @event.listens_for(engine, "begin")
