@@ -151,8 +151,8 @@ def load_key(path: str | os.PathLike[str]) -> Ed25519PrivateKey:
         raise KeyFileError(f"signing key file {file} is not an unencrypted PEM private "
                            f"key: {e}") from None
     if not isinstance(key, Ed25519PrivateKey):
-        raise KeyFileError(f"signing key file {file} holds a {type(key).__name__}, "
-                           "not an Ed25519 key")
+        raise KeyFileError(f"signing key file {file} holds a key of another kind "
+                           f"({type(key).__name__}), not an Ed25519 key")
     return key
 
 
