@@ -36,6 +36,7 @@ import hashlib
 import json.encoder
 import math
 from collections.abc import Iterator
+from itertools import chain
 from typing import Any
 
 import numpy as np
@@ -99,18 +100,23 @@ def _refuse(obj: Any) -> Any:
 
 
 def _require_finite(value: Any) -> None:
-    """Refuse NaN and infinities, walking the containers level by level."""
+    """Refuse NaN and infinities, walking the containers level by level with C-level
+    passes (a type census, then the values of all dicts and items of all lists at once)."""
     level = [value]
     while level:
-        floats = [v for v in level if type(v) is float]
-        if floats and not all(map(math.isfinite, floats)):
-            reference_json(value)            # raises with the pointer
+        kinds = set(map(type, level))
+        if float in kinds and not all(map(math.isfinite, (v for v in level
+                                                          if type(v) is float))):
+            reference_json(value)            # raises, naming the culprit's pointer
         nested: list[Any] = []
-        for v in level:
-            if type(v) is dict:
-                nested.extend(v.values())
-            elif type(v) is list or type(v) is tuple:
-                nested.extend(v)
+        if dict in kinds:
+            dicts = level if len(kinds) == 1 else [v for v in level if type(v) is dict]
+            nested.extend(chain.from_iterable(map(dict.values, dicts)))
+        for sequence in (list, tuple):
+            if sequence in kinds:
+                items = level if len(kinds) == 1 else [v for v in level
+                                                       if type(v) is sequence]
+                nested.extend(chain.from_iterable(items))
         level = nested
 
 
@@ -123,8 +129,9 @@ def _mend_numbers(out: bytes, raw: np.ndarray) -> bytes:
     ECMAScript, which is cut with one mask. Every other token that may differ (exponent
     notation, "-0.0", a positional value below 1e-6) is rewritten by :func:`number_text`.
     """
-    exponents = b"e+" in out or b"e-" in out
-    if b"." not in out and not exponents:
+    exps = np.flatnonzero(raw[:-1] == ord("e")) if b"e" in out else np.zeros(0, np.intp)
+    exps = exps[(raw[exps + 1] == ord("+")) | (raw[exps + 1] == ord("-"))]
+    if b"." not in out and not len(exps):
         return out                           # no float at all
     scan = raw
     if b"\\" in out:
@@ -134,9 +141,7 @@ def _mend_numbers(out: bytes, raw: np.ndarray) -> bytes:
     # A byte is outside strings when an even number of quotes precede it.
     quotes = np.flatnonzero(scan == ord('"'))
     marks = np.flatnonzero(raw == ord("."))
-    if exponents:
-        exps = np.flatnonzero(raw[:-1] == ord("e"))
-        exps = exps[(raw[exps + 1] == ord("+")) | (raw[exps + 1] == ord("-"))]
+    if len(exps):
         marks = np.sort(np.concatenate([marks, exps]))
     marks = marks[np.searchsorted(quotes, marks) % 2 == 0]
     if not len(marks):
