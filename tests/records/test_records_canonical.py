@@ -199,7 +199,7 @@ _json = st.recursive(_scalars, lambda inner: st.lists(inner, max_size=6) | st.di
     max_size=6), max_leaves=40)
 
 
-@settings(max_examples=600, deadline=None)
+@settings(max_examples=300, deadline=None)
 @given(_json)
 def test_agrees_with_the_rfc8785_package(value: object) -> None:
     expected = rfc8785.dumps(value)
@@ -207,7 +207,7 @@ def test_agrees_with_the_rfc8785_package(value: object) -> None:
     assert reference_json(value) == expected
 
 
-@settings(max_examples=2000, deadline=None)
+@settings(max_examples=1000, deadline=None)
 @given(st.floats(allow_nan=False, allow_infinity=False))
 def test_every_float_agrees_with_the_rfc8785_package(x: float) -> None:
     assert number_text(x).encode() == rfc8785.dumps(x)

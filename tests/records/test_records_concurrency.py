@@ -69,7 +69,7 @@ def test_an_appender_killed_inside_its_transaction_leaves_nothing(
 def test_appenders_killed_at_random_moments_leave_whole_records(
         store: DecisionStore, database_url: str, signer: Signer) -> None:
     rng = random.Random(20261203)
-    for round_ in range(4):
+    for round_ in range(3):
         started = [_spawn.Event() for _ in range(2)]
         children = [_spawn.Process(target=append_forever,
                                    args=(database_url, f"r{round_}-{k}", started[k]))
@@ -83,6 +83,6 @@ def test_appenders_killed_at_random_moments_leave_whole_records(
             os.kill(child.pid, signal.SIGKILL)
             child.join()
     size = store.head()[0]
-    assert size >= 8
+    assert size >= 6
     assert [d.log_index for d in store.page(limit=1000)][:size] == list(range(min(size, 1000)))
     _audit(store, signer)
