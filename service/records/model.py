@@ -10,11 +10,16 @@ from typing import Any
 from service.records.canonical import canonical_json
 from service.records.merkle import leaf_hash
 
-__all__ = ["DECISION_FIELDS", "Decision", "NewDecision", "StoredDecision", "rfc3339"]
+__all__ = ["DECISION_FIELDS", "MAX_CALLER", "MAX_VERSION", "Decision", "NewDecision",
+           "StoredDecision", "rfc3339"]
 
 #: The seven fields of the ``decision`` object, the leaf of the log.
 DECISION_FIELDS = ("id", "recorded_at", "input_sha256", "answer_sha256", "log_index",
                    "service_version", "caller")
+
+
+#: Longest caller label and service version the store keeps (the column widths).
+MAX_CALLER, MAX_VERSION = 200, 100
 
 
 def rfc3339(moment: datetime) -> str:
@@ -41,6 +46,12 @@ class NewDecision:
             value = getattr(self, name)
             if len(value) != 64 or any(c not in "0123456789abcdef" for c in value):
                 raise ValueError(f"{name} must be 64 lower-case hex digits")
+        # Checked here, not left to the column: SQLite would keep a longer value and
+        # PostgreSQL refuse it, and the store must behave alike on both.
+        if self.caller is not None and not 0 < len(self.caller) <= MAX_CALLER:
+            raise ValueError(f"caller must be 1 to {MAX_CALLER} characters")
+        if not 0 < len(self.service_version) <= MAX_VERSION:
+            raise ValueError(f"service_version must be 1 to {MAX_VERSION} characters")
 
     @property
     def mode(self) -> str:
@@ -68,6 +79,14 @@ class Decision:
 
     def leaf_hash(self) -> bytes:
         return leaf_hash(self.leaf())
+
+    @classmethod
+    def unrecorded(cls, input_sha256: str, answer_sha256: str, service_version: str,
+                   caller: str | None, moment: datetime | None = None) -> Decision:
+        """The ``decision`` object when recording is off: digests, time and version,
+        with ``id`` and ``log_index`` null."""
+        return cls(None, rfc3339(moment or datetime.now(UTC)), input_sha256, answer_sha256,
+                   None, service_version, caller)
 
     @classmethod
     def from_dict(cls, data: Any) -> Decision:

@@ -46,10 +46,13 @@ from service.records.model import Decision, NewDecision, rfc3339
 from service.records.reads import WRITE, LogReader, decision_columns, row_decision, split
 from service.records.tables import decision_records, idempotency_keys, log_head, log_nodes
 
-__all__ = ["IDEMPOTENCY_TTL", "Appended", "DecisionStore", "make_engine"]
+__all__ = ["IDEMPOTENCY_TTL", "MAX_IDEMPOTENCY_KEY", "Appended", "DecisionStore",
+           "make_engine"]
 
 #: How long an Idempotency-Key is remembered (per caller).
 IDEMPOTENCY_TTL = timedelta(hours=24)
+#: Longest Idempotency-Key kept (the column's width); the HTTP edge refuses longer ones.
+MAX_IDEMPOTENCY_KEY = 255
 #: How long an appender waits for the log lock before the store counts as unavailable.
 LOCK_TIMEOUT_S = 30
 
@@ -134,6 +137,7 @@ class DecisionStore(LogReader):
         """
         if idempotency_key is not None and render is None:
             raise ValueError("an idempotency key needs render, to store the response")
+        _check_key(idempotency_key)
         with self._transaction(write=True) as conn:
             head = conn.execute(select(log_head.c.size, log_head.c.frontier)
                                 .where(log_head.c.id == 1).with_for_update()).one()
@@ -176,6 +180,7 @@ class DecisionStore(LogReader):
     def replay(self, caller: str | None, key: str, input_sha256: str) -> Appended | None:
         """The stored answer to a caller's Idempotency-Key for this body, or None when the
         key is new or expired; IdempotencyKeyReused when it answered another body."""
+        _check_key(key)
         with self._transaction() as conn:
             return self._replay(conn, caller, key, input_sha256, self.clock(), purge=False)
 
@@ -223,3 +228,8 @@ class DecisionStore(LogReader):
             result = conn.execute(delete(idempotency_keys).where(
                 idempotency_keys.c.expires_at <= rfc3339(self.clock())))
             return int(result.rowcount)
+
+
+def _check_key(key: str | None) -> None:
+    if key is not None and not 0 < len(key) <= MAX_IDEMPOTENCY_KEY:
+        raise ValueError(f"an Idempotency-Key must be 1 to {MAX_IDEMPOTENCY_KEY} characters")

@@ -99,6 +99,35 @@ def test_digest_mode_keeps_no_bodies(store: DecisionStore) -> None:
         NewDecision(None, sha(b"a"), sha(b"b"), "0.1.0", b"{}", None)
 
 
+@pytest.mark.parametrize(("fields", "message"), [
+    ({"caller": "x" * 201}, "caller must be 1 to 200 characters"),
+    ({"caller": ""}, "caller must be 1 to 200 characters"),
+    ({"service_version": "v" * 101}, "service_version must be 1 to 100 characters"),
+    ({"input_sha256": "AB" * 32}, "input_sha256 must be 64 lower-case hex digits"),
+])
+def test_new_decisions_are_checked_alike_on_every_backend(fields: dict, message: str) -> None:
+    base = {"caller": "alice", "input_sha256": sha(b"p"), "answer_sha256": sha(b"a"),
+            "service_version": "0.1.0"}
+    with pytest.raises(ValueError, match=message):
+        NewDecision(**{**base, **fields})
+
+
+def test_idempotency_keys_are_bounded(store: DecisionStore) -> None:
+    for key in ("", "k" * 256):
+        with pytest.raises(ValueError, match="1 to 255 characters"):
+            store.append(decision_input(1), idempotency_key=key, render=lambda d: b"")
+        with pytest.raises(ValueError, match="1 to 255 characters"):
+            store.replay("alice", key, sha(b"x"))
+    assert store.head()[0] == 0
+
+
+def test_an_unrecorded_decision_has_no_id_nor_index() -> None:
+    from service.records.model import Decision
+    d = Decision.unrecorded(sha(b"p"), sha(b"a"), "0.1.0", None)
+    assert d.id is None and d.log_index is None and d.recorded_at.endswith("Z")
+    assert set(d.to_dict()) == set(DECISION_FIELDS)
+
+
 def test_idempotency_key_replays_the_same_bytes(store: DecisionStore, clock: Clock) -> None:
     render = lambda d: rfc8785.dumps({"answer": 1, "decision": d.to_dict()})  # noqa: E731
     first = store.append(decision_input(1), idempotency_key="k-1", render=render)
