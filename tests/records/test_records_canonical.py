@@ -7,6 +7,7 @@ import hashlib
 import json
 import struct
 
+import orjson
 import pytest
 import rfc8785
 from hypothesis import given, settings
@@ -182,6 +183,14 @@ def test_non_bmp_keys_sort_by_utf16_code_units() -> None:
 def test_null_beside_floats_is_not_mistaken_for_nan() -> None:
     value = {"capacity": None, "cost": [0.5, None, 2.0]}
     assert canonical_json(value) == b'{"capacity":null,"cost":[0.5,null,2]}'
+    assert canonical_json(value, parsed=True) == b'{"capacity":null,"cost":[0.5,null,2]}'
+
+
+def test_a_parsed_body_cannot_hold_nan() -> None:
+    # orjson.loads refuses NaN and Infinity, which is what parsed=True relies on
+    for text in (b'{"a":NaN}', b'{"a":Infinity}', b'{"a":-Infinity}', b'{"a":1e999}'):
+        with pytest.raises(orjson.JSONDecodeError):
+            orjson.loads(text)
 
 
 def test_sha256_matches_hashlib_of_canonical_bytes() -> None:
