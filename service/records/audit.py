@@ -217,6 +217,10 @@ def _close(checkpoint: Any, frontier: Frontier, report: AuditReport,
     if checkpoint is None:
         report.findings.append("no checkpoint line: the export is truncated")
         return
+    if not isinstance(checkpoint, dict):
+        report.findings.append("checkpoint: not an object of size, root_sha256, signature, "
+                               "public_key and key_id")
+        return
     report.size, report.root_sha256 = checkpoint.get("size"), checkpoint.get("root_sha256")
     problem = verify_checkpoint(checkpoint, public_key)
     if problem is not None:

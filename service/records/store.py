@@ -206,21 +206,27 @@ class DecisionStore(LogReader):
             decision_records.c.id == row.decision_id)).one()
         return Appended(row_decision(record), bytes(row.response), replayed=True)
 
-    def prune(self, older_than_days: int) -> int:
+    def prune(self, older_than_days: int, batch: int = 1000) -> int:
         """Remove the problem and answer of records older than ``older_than_days`` days,
-        keeping their decision fields and leaf; the number of records pruned."""
+        keeping their decision fields and leaf; the number of records pruned. Works in
+        batches of short transactions, so appends go on in between."""
         if older_than_days < 1:
             raise ValueError("older_than_days must be at least 1")
         now = self.clock()
         cutoff = rfc3339(now - timedelta(days=older_than_days))
-        with self._transaction(write=True) as conn:
-            result = conn.execute(
-                update(decision_records)
-                .where(decision_records.c.recorded_at < cutoff,
-                       decision_records.c.pruned_at.is_(None),
-                       decision_records.c.mode == "full")
-                .values(problem=None, answer=None, pruned_at=rfc3339(now)))
-            return int(result.rowcount)
+        c = decision_records.c
+        total = 0
+        while True:
+            with self._transaction(write=True) as conn:
+                due = (select(c.log_index).where(c.recorded_at < cutoff, c.pruned_at.is_(None),
+                                                 c.mode == "full")
+                       .order_by(c.log_index).limit(batch).scalar_subquery())
+                result = conn.execute(update(decision_records).where(c.log_index.in_(due))
+                                      .values(problem=None, answer=None,
+                                              pruned_at=rfc3339(now)))
+            total += int(result.rowcount)
+            if result.rowcount < batch:
+                return total
 
     def purge_idempotency(self) -> int:
         """Forget expired Idempotency-Keys; the number forgotten."""

@@ -210,3 +210,5 @@ def test_garbage_is_named_not_crashed(signer: Signer) -> None:
         "line 3: not a decision record (a decision has exactly the fields id, recorded_at, "
         "input_sha256, answer_sha256, log_index, service_version, caller)",
         "no checkpoint line: the export is truncated"]
+    assert check([header, b'{"checkpoint":[1]}']).findings == [
+        "checkpoint: not an object of size, root_sha256, signature, public_key and key_id"]

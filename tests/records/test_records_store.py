@@ -174,7 +174,7 @@ def test_retention_removes_bodies_and_keeps_the_log(store: DecisionStore, clock:
     clock.advance(days=31)
     young = store.append(decision_input(7)).decision
     root = store.head()
-    assert store.prune(older_than_days=30) == 5
+    assert store.prune(older_than_days=30, batch=2) == 5      # in three transactions
     assert store.prune(older_than_days=30) == 0            # once only
     for d in old:
         stored = store.get(d.id)
