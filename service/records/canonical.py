@@ -12,8 +12,8 @@ Two encoders give the same bytes:
 * :func:`canonical_json`, the one the service calls, lets orjson write the value with
   sorted keys in C and then mends what orjson writes differently. orjson's string escapes
   are those of §3.2.2.2 already; its key order is code-point order, which equals UTF-16
-  order unless a character beyond U+FFFF is present (then the walk is used); its floats
-  are the same shortest round-trip digits, spelled differently in some ranges (``3.0``,
+  order unless a member name holds a character beyond U+FFFF (then the walk is used); its
+  floats are the same shortest round-trip digits, spelled differently in some ranges (``3.0``,
   ``1e+16``, ``1e-6``, ``-0.0``), so every float token outside a string is found with
   numpy and rewritten by :func:`number_text` where it differs. On a 600,000-arc body this
   is about 20 times faster than the walk (README of ``service/records``, figures).
@@ -22,7 +22,9 @@ Only JSON values are accepted (dict with str keys, list, tuple, str, int, float,
 None). Integers must lie within ±(2**53 - 1), the range in which every integer is exactly
 an IEEE 754 double (RFC 7493 §2.2): beyond it two different integers would canonicalise
 alike. NaN and the infinities are not JSON and are refused, as are lone surrogates
-(RFC 8785 §3.2.2.2 requires valid Unicode).
+(RFC 8785 §3.2.2.2 requires valid Unicode). Other Python objects are refused, except
+the few orjson writes by itself (``uuid.UUID``, ``enum.Enum`` members) on the fast path:
+pass plain JSON data.
 
 References
 ----------
@@ -96,13 +98,41 @@ def canonical_json(value: Any, *, parsed: bool = False) -> bytes:
     except (orjson.JSONEncodeError, TypeError):
         return reference_json(value)          # raises with the culprit's pointer
     raw = np.frombuffer(out, np.uint8)
-    if len(raw) and raw.max() >= 0xF0:
-        # A character beyond U+FFFF somewhere: its key, if it is one, sorts differently
-        # in UTF-16 than in code points; the walk sorts right.
+    quotes = _Quotes(out, raw)
+    if len(raw) and raw.max() >= 0xF0 and _beyond_bmp_in_a_key(raw, quotes()):
+        # A member name with a character beyond U+FFFF sorts differently in UTF-16 than
+        # in code points; the walk sorts right. (In values such characters change nothing.)
         return reference_json(value)
     if not parsed and b"null" in out:
         _require_finite(value)               # orjson writes NaN and infinities as null
-    return _mend_numbers(out, raw)
+    return _mend_numbers(out, raw, quotes)
+
+
+class _Quotes:
+    """Positions of the quotes of ``out`` that delimit strings, found once when needed."""
+
+    def __init__(self, out: bytes, raw: np.ndarray) -> None:
+        self._out, self._raw = out, raw
+        self._found: np.ndarray | None = None
+
+    def __call__(self) -> np.ndarray:
+        if self._found is None:
+            scan = self._raw
+            if b"\\" in self._out:
+                # Blank escaped backslashes, then escaped quotes (same length), so that
+                # every quote left delimits a string.
+                scan = np.frombuffer(self._out.replace(b"\\\\", b"__")
+                                     .replace(b'\\"', b"__"), np.uint8)
+            self._found = np.flatnonzero(scan == ord('"'))
+        return self._found
+
+
+def _beyond_bmp_in_a_key(raw: np.ndarray, quotes: np.ndarray) -> bool:
+    """Whether a 4-byte UTF-8 sequence lies in a member name: the string holding it
+    (every such byte is inside one) closes with a quote followed by ':'."""
+    leads = np.flatnonzero(raw >= 0xF0)
+    closing = quotes[np.searchsorted(quotes, leads)]
+    return bool((raw[np.minimum(closing + 1, len(raw) - 1)] == ord(":")).any())
 
 
 def _refuse(obj: Any) -> Any:
@@ -130,7 +160,7 @@ def _require_finite(value: Any) -> None:
         level = nested
 
 
-def _mend_numbers(out: bytes, raw: np.ndarray) -> bytes:
+def _mend_numbers(out: bytes, raw: np.ndarray, quotes: _Quotes) -> bytes:
     """Rewrite the float tokens of orjson's output that ECMAScript spells differently.
 
     orjson writes a float with the same shortest round-trip digits as ECMAScript, in
@@ -143,17 +173,11 @@ def _mend_numbers(out: bytes, raw: np.ndarray) -> bytes:
     exps = exps[(raw[exps + 1] == ord("+")) | (raw[exps + 1] == ord("-"))]
     if b"." not in out and not len(exps):
         return out                           # no float at all
-    scan = raw
-    if b"\\" in out:
-        # Blank escaped backslashes, then escaped quotes (same length), so that every
-        # quote left delimits a string.
-        scan = np.frombuffer(out.replace(b"\\\\", b"__").replace(b'\\"', b"__"), np.uint8)
-    # A byte is outside strings when an even number of quotes precede it.
-    quotes = np.flatnonzero(scan == ord('"'))
     marks = np.flatnonzero(raw == ord("."))
     if len(exps):
         marks = np.sort(np.concatenate([marks, exps]))
-    marks = marks[np.searchsorted(quotes, marks) % 2 == 0]
+    # A byte is outside strings when an even number of delimiting quotes precede it.
+    marks = marks[np.searchsorted(quotes(), marks) % 2 == 0]
     if not len(marks):
         return out
     w = _TOKEN_WINDOW

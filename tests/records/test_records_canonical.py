@@ -180,6 +180,17 @@ def test_non_bmp_keys_sort_by_utf16_code_units() -> None:
     assert canonical_json(value) == rfc8785.dumps(value)
 
 
+def test_characters_beyond_the_bmp_in_values_keep_the_fast_path(monkeypatch) -> None:
+    # Only member names sort differently; an id with an emoji must not cost the walk.
+    import service.records.canonical as module
+
+    value = {"arcs": [{"from": "depot-\U0001f69a", "to": 't"\U0001f527', "cost": 2.0}],
+             "b": "\\\U0001f600:"}
+    expected = rfc8785.dumps(value)
+    monkeypatch.setattr(module, "reference_json", lambda v: pytest.fail("walked"))
+    assert canonical_json(value) == expected
+
+
 def test_null_beside_floats_is_not_mistaken_for_nan() -> None:
     value = {"capacity": None, "cost": [0.5, None, 2.0]}
     assert canonical_json(value) == b'{"capacity":null,"cost":[0.5,null,2]}'
