@@ -13,10 +13,11 @@ Two encoders give the same bytes:
   sorted keys in C and then mends what orjson writes differently. orjson's string escapes
   are those of §3.2.2.2 already; its key order is code-point order, which equals UTF-16
   order unless a member name holds a character beyond U+FFFF (then the walk is used); its
-  floats are the same shortest round-trip digits, spelled differently in some ranges (``3.0``,
-  ``1e+16``, ``1e-6``, ``-0.0``), so every float token outside a string is found with
-  numpy and rewritten by :func:`number_text` where it differs. On a 600,000-arc body this
-  is about 20 times faster than the walk (README of ``service/records``, figures).
+  floats are the same shortest round-trip digits, spelled differently in some ranges
+  (``3.0``, ``1e+16``, ``1e-6``, ``-0.0``), so every float token outside a string is
+  found with numpy and rewritten by :func:`number_text` where it differs. On a
+  600,000-arc body this is 15 to 40 times faster than the walk
+  (``tests/records/bench/canonical_speed.py``).
 
 Only JSON values are accepted (dict with str keys, list, tuple, str, int, float, bool,
 None). Integers must lie within ±(2**53 - 1), the range in which every integer is exactly
