@@ -78,3 +78,17 @@ def append_and_hang(url: str, ready, marker: str) -> None:  # type: ignore[no-un
         return b""
 
     store.append(decision_input(99, caller=marker), idempotency_key=marker, render=hang)
+
+
+def append_with_key(url: str, key: str) -> tuple[str, bytes, bool]:
+    """Run in a child process: one append under an Idempotency-Key; (id, response,
+    replayed)."""
+    import json
+
+    from service.records.store import DecisionStore, make_engine
+
+    store = DecisionStore(make_engine(url))
+    done = store.append(decision_input(5), idempotency_key=key,
+                        render=lambda d: json.dumps(d.to_dict()).encode())
+    assert done.decision.id is not None and done.response is not None
+    return done.decision.id, done.response, done.replayed

@@ -10,7 +10,7 @@ import random
 import signal
 import time
 
-from records_helpers import append_and_hang, append_forever, append_many
+from records_helpers import append_and_hang, append_forever, append_many, append_with_key
 
 from service.records.audit import check, export
 from service.records.signing import Signer
@@ -44,6 +44,15 @@ def test_concurrent_appends_form_one_gap_free_order(store: DecisionStore,
     assert [d.recorded_at for d in log] == sorted(d.recorded_at for d in log)
     assert {d.id: d.log_index for d in log} == {d: i for done in results for i, d in done}
     _audit(store, signer)
+
+
+def test_one_key_sent_by_several_processes_at_once_records_once(
+        store: DecisionStore, database_url: str) -> None:
+    with _spawn.Pool(PROCESSES) as pool:
+        results = pool.starmap(append_with_key, [(database_url, "same-key")] * PROCESSES)
+    assert len({(i, r) for i, r, _ in results}) == 1          # one id, the same bytes
+    assert sorted(replayed for _, _, replayed in results) == [False] + [True] * (PROCESSES - 1)
+    assert store.head()[0] == 1
 
 
 def test_an_appender_killed_inside_its_transaction_leaves_nothing(
