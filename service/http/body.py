@@ -9,6 +9,7 @@ from flask import Response, current_app, request
 from werkzeug.exceptions import RequestEntityTooLarge
 
 from service.errors import MalformedBody, UnsupportedMediaType
+from service.http.duplicates import duplicate_keys
 from service.settings import Settings
 
 
@@ -19,7 +20,12 @@ def current_settings() -> Settings:
 
 
 def json_body() -> Any:
-    """The parsed JSON body: 415, 413 or 400 problem documents when it is not one."""
+    """The parsed JSON body: 415, 413 or 400 problem documents when it is not one.
+
+    A body with a key repeated within one object is refused (400, ``errors`` naming each
+    repeated key by JSON Pointer): orjson would keep the last silently, another reader the
+    first.
+    """
     mimetype = request.mimetype
     if mimetype != "application/json" and not (
             mimetype.startswith("application/") and mimetype.endswith("+json")):
@@ -27,9 +33,15 @@ def json_body() -> Any:
         raise UnsupportedMediaType(f"send the body as application/json, not {got}")
     raw = _read_body()
     try:
-        return orjson.loads(raw)
+        doc = orjson.loads(raw)
     except orjson.JSONDecodeError as e:
         raise MalformedBody(f"the body is not valid JSON: {e}") from None
+    repeated = duplicate_keys(raw, doc)
+    if repeated:
+        first = repeated[0]
+        more = f" (and {len(repeated) - 1} more)" if len(repeated) > 1 else ""
+        raise MalformedBody(f"{first['pointer']}: {first['detail']}{more}", errors=repeated)
+    return doc
 
 
 def _read_body() -> bytes:
