@@ -12,6 +12,7 @@ from flask import Blueprint, Response, current_app
 from service.errors import PROBLEM_CONTENT_TYPE, CertificateFailure, problem_document
 from service.http import observe
 from service.http.body import current_settings, json_body, json_response
+from service.http.limits import time_limits_told_apart
 from service.settings import Settings
 from service.solve.pipeline import request_scope, solve_body, verify_body
 
@@ -54,7 +55,8 @@ def _answered(work: Callable[[Any], Response]) -> Response:
 
     try:
         parsed.append(json_body())
-        response = work(parsed[0])
+        with time_limits_told_apart(parsed[0], current_settings()):
+            response = work(parsed[0])
     except BaseException:
         finish()
         raise
