@@ -83,9 +83,12 @@ def verify() -> Response:
     return _answered(check)
 
 
+# The probes' answers end with a newline: people and scripts read them with curl, whose
+# output would otherwise run into the next prompt or line.
+
 @api_bp.get("/healthz")
 def healthz() -> Response:
-    return json_response({"status": "ok"})
+    return json_response({"status": "ok"}, newline=True)
 
 
 @api_bp.get("/readyz")
@@ -97,6 +100,6 @@ def readyz() -> Response:
     if not state["certimatch.ready"]:
         doc = problem_document(503, "Not ready", "the start-up probe problem was not solved "
                                "correctly", "not-ready")
-        return json_response(doc, 503, PROBLEM_CONTENT_TYPE)
-    return json_response({"status": "ready"})
+        return json_response(doc, 503, PROBLEM_CONTENT_TYPE, newline=True)
+    return json_response({"status": "ready"}, newline=True)
 
