@@ -214,6 +214,46 @@ def worker_exit(server: Any, worker: Any) -> None:
     os._exit(0)
 
 
+def post_worker_init(worker: Any) -> None:
+    """In each worker, once: gunicorn's own error answers become problem documents.
+
+    gunicorn answers a request it cannot parse (a bad request line, header fields over
+    ``limit_request_field_size``...) itself, before the app sees it, with a small HTML page
+    written by ``gunicorn.util.write_error``; it offers no hook for that page. Its worker
+    calls the function through the module, so replacing it here, in the worker process
+    only, changes the page and nothing else: the status and the reason stay gunicorn's,
+    the body becomes the RFC 9457 document every other error is, with a request id.
+    tests/http/test_gunicorn_errors.py holds a real gunicorn to this.
+    """
+    from gunicorn import util
+
+    util.write_error = write_problem
+
+
+def write_problem(sock: Any, status: int, reason: str, message: str) -> None:
+    """gunicorn's ``write_error``, answering ``application/problem+json``."""
+    import uuid
+
+    import orjson
+
+    from service.errors import PROBLEM_CONTENT_TYPE, problem_document
+    from service.http.observe import REQUEST_ID_HEADER
+
+    if message:
+        detail = "the server could not read the request: " + message[:1].lower() + message[1:]
+    else:
+        detail = "the server failed before the service could answer; the error is logged"
+    # the message may quote bytes of the request that are no text: shown escaped
+    detail = detail[:1000].encode("utf-8", "backslashreplace").decode("utf-8")
+    body = orjson.dumps(problem_document(status, reason, detail))
+    head = (f"HTTP/1.1 {status} {reason}\r\nConnection: close\r\n"
+            f"Content-Type: {PROBLEM_CONTENT_TYPE}\r\nContent-Length: {len(body)}\r\n"
+            f"{REQUEST_ID_HEADER}: {uuid.uuid4().hex}\r\n\r\n")
+    from gunicorn import util
+
+    util.write_nonblock(sock, head.encode("latin-1") + body)
+
+
 def child_exit(server: Any, worker: Any) -> None:
     """A worker ended (recycled, killed, crashed): drop its live gauges from /metrics."""
     from prometheus_client import multiprocess

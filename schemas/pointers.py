@@ -8,7 +8,8 @@ from typing import Any
 from marshmallow import Schema
 
 
-def _escape(token: str) -> str:
+def escape_token(token: str) -> str:
+    """One reference token of a JSON Pointer (RFC 6901, section 3: ``~`` and ``/`` escaped)."""
     return token.replace("~", "~0").replace("/", "~1")
 
 
@@ -23,7 +24,7 @@ def to_pointers(messages: Any, prefix: str = "") -> list[dict[str, str]]:
     out: list[dict[str, str]] = []
     if isinstance(messages, dict):
         for key, sub in messages.items():
-            here = prefix if key == "_schema" else f"{prefix}/{_escape(str(key))}"
+            here = prefix if key == "_schema" else f"{prefix}/{escape_token(str(key))}"
             out.extend(to_pointers(sub, here))
     elif isinstance(messages, list | tuple):
         for sub in messages:

@@ -40,3 +40,6 @@ class ProblemDocumentSchema(Schema):
     limit = fields.Integer(metadata={"description": "the size limit exceeded (too-large)"})
     checks = fields.List(fields.Nested(CheckSchema),
                          metadata={"description": "failed checks (certificate-failure)"})
+    time_limit_s = fields.Float(metadata={"description": "the time limit that ran out"})
+    max_time_limit_s = fields.Float(metadata={"description": "the server's MAX_TIME_LIMIT_S"})
+    cpu_s = fields.Float(metadata={"description": "CPU seconds before the limit (server-busy)"})

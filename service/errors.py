@@ -122,8 +122,48 @@ class Unauthorized(ServiceError):
 
 
 class TimeLimitExceeded(ServiceError):
-    """The request computed longer than its time limit; nothing of it is answered."""
+    """The request ran out of its own ``time_limit_s`` while it had the CPU: the same
+    limit runs out again (a retry needs a longer limit or a smaller problem), so the answer
+    is a 4xx without ``Retry-After``. Nothing of the request is answered.
+
+    The time limit raises this (``service.solve.deadline``); the HTTP edge, which knows
+    whether the limit was the request's own or the server's cap, turns the latter into a
+    :class:`ServerTimeLimit` (:meth:`for_server`).
+    """
+
+    status = 422
+    slug = "time-limit"
+    title = "Time limit of the request reached"
+
+    def __init__(self, detail: str, *, what: str, limit_s: float, **extra: Any) -> None:
+        super().__init__(detail, time_limit_s=limit_s, **extra)
+        self.what = what
+        self.limit_s = limit_s
+
+    def for_server(self, asked: float | None) -> ServerTimeLimit:
+        """The same event when the limit was the server's ``MAX_TIME_LIMIT_S``."""
+        more = (f" (the request asked for {asked:g} s, more than the server allows)"
+                if asked is not None else "")
+        return ServerTimeLimit(
+            f"{self.what} took longer than the server's limit of {self.limit_s:g} s"
+            f"{more}; a request cannot raise that limit, so the same problem runs out again: "
+            "send a smaller problem, or ask the operator for a higher MAX_TIME_LIMIT_S",
+            what=self.what, limit_s=self.limit_s)
+
+
+class ServerTimeLimit(TimeLimitExceeded):
+    """The server's ``MAX_TIME_LIMIT_S`` ran out (the request asked for no limit, or for
+    more): a request cannot raise it, and waiting does not shorten the work."""
+
+    status = 422
+    slug = "server-time-limit"
+    title = "Time limit of the server reached"
+
+
+class ServerBusy(ServiceError):
+    """The time limit ran out because the request did not get the CPU (other work on the
+    machine took most of it): the same request may finish later, so ``Retry-After``."""
 
     status = 503
-    slug = "time-limit"
-    title = "Time limit reached"
+    slug = "server-busy"
+    title = "Server too busy to finish in time"

@@ -12,6 +12,7 @@ from flask import Blueprint, Response, current_app
 from service.errors import PROBLEM_CONTENT_TYPE, CertificateFailure, problem_document
 from service.http import observe
 from service.http.body import current_settings, json_body, json_response
+from service.http.limits import time_limits_told_apart
 from service.settings import Settings
 from service.solve.pipeline import request_scope, solve_body, verify_body
 
@@ -54,7 +55,8 @@ def _answered(work: Callable[[Any], Response]) -> Response:
 
     try:
         parsed.append(json_body())
-        response = work(parsed[0])
+        with time_limits_told_apart(parsed[0], current_settings()):
+            response = work(parsed[0])
     except BaseException:
         finish()
         raise
@@ -81,9 +83,12 @@ def verify() -> Response:
     return _answered(check)
 
 
+# The probes' answers end with a newline: people and scripts read them with curl, whose
+# output would otherwise run into the next prompt or line.
+
 @api_bp.get("/healthz")
 def healthz() -> Response:
-    return json_response({"status": "ok"})
+    return json_response({"status": "ok"}, newline=True)
 
 
 @api_bp.get("/readyz")
@@ -95,6 +100,6 @@ def readyz() -> Response:
     if not state["certimatch.ready"]:
         doc = problem_document(503, "Not ready", "the start-up probe problem was not solved "
                                "correctly", "not-ready")
-        return json_response(doc, 503, PROBLEM_CONTENT_TYPE)
-    return json_response({"status": "ready"})
+        return json_response(doc, 503, PROBLEM_CONTENT_TYPE, newline=True)
+    return json_response({"status": "ready"}, newline=True)
 

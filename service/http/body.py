@@ -6,9 +6,10 @@ from typing import Any
 
 import orjson
 from flask import Response, current_app, request
-from werkzeug.exceptions import RequestEntityTooLarge
+from werkzeug.exceptions import BadRequest, HTTPException, RequestEntityTooLarge
 
 from service.errors import MalformedBody, UnsupportedMediaType
+from service.http.duplicates import duplicate_keys
 from service.settings import Settings
 
 
@@ -19,7 +20,12 @@ def current_settings() -> Settings:
 
 
 def json_body() -> Any:
-    """The parsed JSON body: 415, 413 or 400 problem documents when it is not one."""
+    """The parsed JSON body: 415, 413 or 400 problem documents when it is not one.
+
+    A body with a key repeated within one object is refused (400, ``errors`` naming each
+    repeated key by JSON Pointer): orjson would keep the last silently, another reader the
+    first.
+    """
     mimetype = request.mimetype
     if mimetype != "application/json" and not (
             mimetype.startswith("application/") and mimetype.endswith("+json")):
@@ -27,9 +33,15 @@ def json_body() -> Any:
         raise UnsupportedMediaType(f"send the body as application/json, not {got}")
     raw = _read_body()
     try:
-        return orjson.loads(raw)
+        doc = orjson.loads(raw)
     except orjson.JSONDecodeError as e:
         raise MalformedBody(f"the body is not valid JSON: {e}") from None
+    repeated = duplicate_keys(raw, doc)
+    if repeated:
+        first = repeated[0]
+        more = f" (and {len(repeated) - 1} more)" if len(repeated) > 1 else ""
+        raise MalformedBody(f"{first['pointer']}: {first['detail']}{more}", errors=repeated)
+    return doc
 
 
 def _read_body() -> bytes:
@@ -39,16 +51,26 @@ def _read_body() -> bytes:
     length, and its stream merely stops at the limit, so read one byte past it to know.
     """
     limit = current_settings().max_body_bytes
-    if request.content_length is not None:
-        return request.get_data(cache=False)   # 413 here when over the limit
-    # request.stream would stop quietly at the limit: read the server's own input stream
-    raw = request.environ["wsgi.input"].read(limit + 1)
+    try:
+        if request.content_length is not None:
+            return request.get_data(cache=False)   # 413 here when over the limit
+        # request.stream would stop quietly at the limit: read the server's own input
+        raw = request.environ["wsgi.input"].read(limit + 1)
+    except HTTPException:
+        raise                           # werkzeug's own: 413, a client that went away
+    except Exception as e:
+        # The server could not decode the transfer (gunicorn raises its own parse errors
+        # for a bad chunk size or a chunk without its CRLF while the body is read): the
+        # client's fault, so a 400, not an internal error.
+        raise BadRequest(f"the body could not be read: {e}") from None
     if len(raw) > limit:
         raise RequestEntityTooLarge()
     return raw
 
 
-def json_response(doc: Any, status: int = 200,
-                  content_type: str = "application/json") -> Response:
-    return Response(orjson.dumps(doc), status=status, content_type=content_type)
+def json_response(doc: Any, status: int = 200, content_type: str = "application/json",
+                  newline: bool = False) -> Response:
+    """``doc`` as JSON; ``newline`` ends it with one (the probes, read in terminals)."""
+    body = orjson.dumps(doc, option=orjson.OPT_APPEND_NEWLINE if newline else None)
+    return Response(body, status=status, content_type=content_type)
 

@@ -42,8 +42,9 @@ LOGGERS = ("certimatch", "service", "schemas")
 
 log = logging.getLogger("certimatch")
 
-# Visible ASCII with inner spaces: anything else (control characters, other encodings,
-# an empty or over-long value) could forge or break log lines, so such an id is replaced.
+# 1 to 128 characters from space to tilde, not beginning or ending with a space (README,
+# "Observe"): anything else (control characters, other encodings, an empty or over-long
+# value) could forge or break log lines, so such an id is replaced, never trimmed or cut.
 _CLIENT_ID = re.compile(rf"[\x21-\x7e](?:[\x20-\x7e]{{0,{REQUEST_ID_MAX - 2}}}[\x21-\x7e])?")
 
 #: Solve time buckets in seconds: a 1 x 1 problem takes about a millisecond, the largest
@@ -56,11 +57,10 @@ PROBLEM_SIZE_BUCKETS = (1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8)
 
 
 def request_id_from(raw: str | None) -> str:
-    """The client's ``X-Request-ID`` when it is safe to log and echo, else a fresh one."""
-    if raw is not None:
-        raw = raw.strip()
-        if _CLIENT_ID.fullmatch(raw):
-            return raw
+    """The client's ``X-Request-ID`` exactly as it came when it is safe to log and echo,
+    else a fresh one (32 lower-case hexadecimal digits)."""
+    if raw is not None and _CLIENT_ID.fullmatch(raw):
+        return raw
     return uuid.uuid4().hex
 
 

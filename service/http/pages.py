@@ -102,19 +102,15 @@ _PAGE = """<!doctype html>
 <h1>certimatch</h1>
 <p class="lead">Least-cost allocation of supply to demand over HTTP. Every answer comes with
 an optimality certificate (potentials and a cut) that anyone can check.</p>
-<nav><a href="/v1/openapi.yaml">OpenAPI document</a><a href="/healthz">/healthz</a><a
-href="/readyz">/readyz</a>{metrics_link}</nav>
+<nav>{nav}</nav>
 </header>
 
 <h2>Endpoints</h2>
+<p>Every route of this service. The POST routes take a JSON body: following their link
+only shows the 405 answer that says so; the OpenAPI document describes their bodies.</p>
 <table>
 <tr><th>method</th><th>path</th><th>what it does</th></tr>
-<tr><td>POST</td><td><code>/v1/solve</code></td><td>solve a problem and certify the answer</td></tr>
-<tr><td>POST</td><td><code>/v1/verify</code></td><td>check any answer against its problem</td></tr>
-<tr><td>GET</td><td><code>/v1/openapi.yaml</code></td><td>the wire format (OpenAPI 3.1)</td></tr>
-<tr><td>GET</td><td><code>/healthz</code>, <code>/readyz</code></td><td>liveness and
-readiness probes</td></tr>
-{metrics_row}</table>
+{routes}</table>
 
 <h2>A worked example</h2>
 <p>Two technicians take repair tickets. <b>north</b> has two slots, <b>south</b> one. The
@@ -141,6 +137,33 @@ yourself, send the problem with the answer added as <code>"answer"</code> to
 </body>
 </html>
 """
+
+
+#: What each route does, in the order the page lists them; a route the app has and this
+#: table lacks is still listed (tests/http/test_edges.py wants every one described).
+_ROUTES = {
+    "/v1/solve": "solve a problem and certify the answer",
+    "/v1/verify": "check any answer against its problem",
+    "/v1/report": "the audit report of an answer, as an HTML page or an SVG picture",
+    "/v1/openapi.yaml": "the wire format (OpenAPI 3.1)",
+    "/healthz": "liveness probe: the process answers",
+    "/readyz": "readiness probe: the process has solved a 1 \u00d7 1 problem correctly",
+    "/metrics": "Prometheus metrics",
+    "/": "this page",
+}
+_NAV = {"/v1/openapi.yaml": "OpenAPI document"}
+
+
+def _routes() -> list[tuple[str, list[str]]]:
+    """(path, methods) of every route of this app: the described ones in their order, then
+    any other, so that a new route can never be missing from the page."""
+    found: dict[str, set[str]] = {}
+    for rule in current_app.url_map.iter_rules():
+        if rule.endpoint != "static":
+            found.setdefault(rule.rule, set()).update(rule.methods or ())
+    order = list(_ROUTES)
+    paths = sorted(found, key=lambda p: (order.index(p) if p in order else len(order), p))
+    return [(p, sorted(found[p] - {"HEAD", "OPTIONS"})) for p in paths]
 
 
 def _example_answer() -> dict[str, Any]:
@@ -179,15 +202,17 @@ def home() -> Response:
         for r in answer["allocation"])
     unmet = " ".join(f"{html.escape(u['id'])} waits ({u['amount']} unit"
                      f"{'s' if u['amount'] != 1 else ''})." for u in answer["unmet"])
-    metrics_on = current_settings().metrics_enabled
+    routes = _routes()
     page = _PAGE.format(
         command=html.escape(command),
         answer=html.escape(_layout(answer, 2)),
         rows=rows, unmet=unmet, objective=answer["objective"],
         dual=answer["certificate"]["dual_objective"],
-        metrics_link='<a href="/metrics">/metrics</a>' if metrics_on else "",
-        metrics_row=('<tr><td>GET</td><td><code>/metrics</code></td><td>Prometheus '
-                     'metrics</td></tr>\n') if metrics_on else "")
+        nav="".join(f'<a href="{path}">{html.escape(_NAV.get(path, path))}</a>'
+                    for path, methods in routes if "GET" in methods and path != "/"),
+        routes="".join(f'<tr><td>{", ".join(methods)}</td><td><a href="{path}"><code>{path}'
+                       f"</code></a></td><td>{html.escape(_ROUTES.get(path, ''))}</td></tr>\n"
+                       for path, methods in routes))
     response = Response(page, content_type="text/html; charset=utf-8")
     # No script and nothing from elsewhere: the policy says so to the browser as well.
     response.headers["Content-Security-Policy"] = (

@@ -12,6 +12,7 @@ from flask import Blueprint, Response, request
 from werkzeug.exceptions import BadRequest
 
 from service.http.body import current_settings, json_body
+from service.http.limits import time_limits_told_apart
 from service.report import FORMATS, MEDIA_TYPES, build_report
 
 report_bp = Blueprint("report", __name__)
@@ -26,6 +27,7 @@ def report() -> Response:
         raise BadRequest(f"format must be one of {', '.join(FORMATS)}, not {fmt!r}")
     body = json_body()
     settings = current_settings()
-    document, _ = build_report(body, settings, fmt)
+    with time_limits_told_apart(body, settings):
+        document, _ = build_report(body, settings, fmt)
     # The verdict is in the page: a NOT VALID answer is a successfully written report.
     return Response(document, status=200, content_type=MEDIA_TYPES[fmt])

@@ -7,6 +7,8 @@ cost grid (see :mod:`service.network.model`).
 
 from __future__ import annotations
 
+import re
+import unicodedata
 from typing import Any
 
 import numpy as np
@@ -104,27 +106,113 @@ def _min_form(values: np.ndarray, scale: int, sign: int) -> np.ndarray:
     return scaled if sign > 0 else -scaled
 
 
+#: Characters an id may not contain: the C0 and C1 control characters, and the
+#: bidirectional formatting characters (Unicode's Bidi_Control property), which make an id
+#: display as another one. The first class is all of Unicode's general category Cc.
+_CONTROL = "\x00-\x1f\x7f-\x9f"
+_BIDI = "\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069"
+_FORBIDDEN_CHAR = re.compile(f"[{_CONTROL}{_BIDI}]")
+#: Look-up tables by code point (every one of these characters is below U+3001).
+_IS_BIDI = np.zeros(0x3001, bool)
+_IS_BIDI[[0x061C, 0x200E, 0x200F, *range(0x202A, 0x202F), *range(0x2066, 0x206A)]] = True
+#: What str.isspace and str.strip take for whitespace: Unicode's White_Space characters
+#: and the four information separators U+001C to U+001F (bidirectional class B or S).
+_IS_SPACE = np.zeros(0x3001, bool)
+_IS_SPACE[[*range(0x09, 0x0E), *range(0x1C, 0x21), 0x85, 0xA0, 0x1680, *range(0x2000, 0x200B),
+           0x2028, 0x2029, 0x202F, 0x205F, 0x3000]] = True
+
+
 def _check_ids(ids: list[str], groups: list, max_len: int) -> list[dict[str, str]]:
-    errors: list[dict[str, str]] = []
+    """Errors of the declared ids: length, control and bidirectional formatting characters,
+    leading or trailing whitespace (an id of only whitespace has both), exact repeats, and
+    ids that differ but are equal after Unicode NFC normalisation (both pointers).
+
+    The ids stay as sent; normalisation only finds ids that a person could not tell apart.
+    Every id is checked at once with C-level passes (a join, a count, numpy on its bytes,
+    one NFC normalisation of the join), and only a problem found sends the check id by id.
+    """
     too_long = max(map(len, ids), default=0) > max_len
     unique = len(set(ids)) == len(ids)
-    if unique and not too_long:
-        return errors
+    # NUL, never part of a good id, separates them: normalisation cannot reach across it
+    # (a starter that composes with nothing), and _written_well counts n - 1 of them unless
+    # an id holds one
+    joined = "\x00".join(ids)
+    nfc = joined if joined.isascii() else unicodedata.normalize("NFC", joined)
+    if unique and not too_long and nfc == joined and _written_well(len(ids), joined):
+        return []
+    errors: list[dict[str, str]] = []
     first: dict[str, str] = {}
+    seen: dict[str, tuple[str, str]] = {}   # NFC form -> (pointer, id) of its first id
+    told: set[str] = set()                  # pointers already named in an NFC error
     for name, table in groups:
         if table is None:
             continue
         for i, id_ in enumerate(table.columns["id"]):
             pointer = f"/{name}/{i}/id"
-            if len(id_) > max_len:
-                errors.append({"pointer": pointer,
-                               "detail": f"must be at most {max_len} characters long"})
+            errors.extend({"pointer": pointer, "detail": d} for d in _id_faults(id_, max_len))
             if id_ in first:
                 errors.append({"pointer": pointer,
                                "detail": f"duplicate id {id_!r} (first at {first[id_]})"})
-            else:
-                first[id_] = pointer
+                continue
+            first[id_] = pointer
+            form = unicodedata.normalize("NFC", id_)
+            if form not in seen:
+                seen[form] = (pointer, id_)
+                continue
+            other, other_id = seen[form]
+            if other not in told:
+                told.add(other)
+                errors.append({"pointer": other, "detail": _nfc_detail(other_id, pointer)})
+            errors.append({"pointer": pointer, "detail": _nfc_detail(id_, other)})
     return errors
+
+
+def _written_well(n: int, joined: str) -> bool:
+    """No id of the ``n`` joined by NUL has a forbidden character or whitespace at either
+    end: numpy on the code points of the join, whatever their number."""
+    try:
+        points = np.frombuffer(joined.encode("latin-1"), np.uint8)
+    except UnicodeEncodeError:
+        # UTF-16 code units: a character beyond U+FFFF becomes two surrogates, neither of
+        # which is a control, a bidirectional or a space character, so nothing is missed
+        points = np.frombuffer(joined.encode("utf-16-le", "surrogatepass"), np.uint16)
+    nul = np.flatnonzero(points == 0)
+    if len(nul) != n - 1 or np.count_nonzero(points < 0x20) != n - 1:
+        return False                    # a NUL or another C0 control inside an id
+    if np.count_nonzero((points >= 0x7F) & (points <= 0x9F)):
+        return False
+    if points.dtype == np.uint16 and _IS_BIDI[points[(points >= 0x061C)
+                                                     & (points <= 0x2069)]].any():
+        return False
+    edges = points[np.concatenate(([0], nul + 1, nul - 1, [len(points) - 1]))]
+    return not _IS_SPACE[edges[edges < len(_IS_SPACE)]].any()
+
+
+def _id_faults(id_: str, max_len: int) -> list[str]:
+    """What is wrong with one id, in words (the slow path of _check_ids)."""
+    faults = []
+    if len(id_) > max_len:
+        faults.append(f"must be at most {max_len} characters long")
+    if not id_.strip():
+        faults.append("must hold more than whitespace")
+    elif id_ != id_.strip():
+        faults.append("must not begin or end with whitespace")
+    found = _FORBIDDEN_CHAR.search(id_)
+    if found:
+        char = found.group()
+        what = ("control characters (U+0000 to U+001F, U+007F to U+009F)"
+                if unicodedata.category(char) == "Cc" else
+                "bidirectional formatting characters (U+061C, U+200E, U+200F, U+202A to "
+                "U+202E, U+2066 to U+2069)")
+        faults.append(f"must not contain {what}; U+{ord(char):04X} is at position "
+                      f"{found.start()}")
+    return faults
+
+
+def _nfc_detail(id_: str, other: str) -> str:
+    # ascii() shows the code points, which are all that tells the two ids apart
+    return (f"id {ascii(id_)} equals the id at {other} after Unicode NFC normalisation; ids "
+            "that read the same must be written the same")
 
 
 def _check_matrix(matrix: np.ndarray, n_src: int, n_snk: int, settings: Settings,

@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-
 import numpy as np
 
+from service.report.labels import LABEL_SIZE, place_labels
 from service.report.model import _Model
 from service.report.style import (
     _CHAR_W,
@@ -101,7 +100,7 @@ def _diagram(m: _Model, standalone: bool) -> str:
     fan_out = np.bincount(m.tail[used], minlength=len(m.places))
     fan_in = np.bincount(m.head[used], minlength=len(m.places))
     out.append('<g class="flows">')
-    labels: list[str] = []
+    wanted: list[tuple[int, str, float]] = []      # (arc, colour, preferred parameter)
     for k in used.tolist():
         full = bool(np.isfinite(m.cap[k]) and m.flow[k] >= m.cap[k])
         kind = "bad" if m.violation[k] else ("full" if full else "flow")
@@ -116,13 +115,23 @@ def _diagram(m: _Model, standalone: bool) -> str:
             # Fan-outs bunch their labels near the shared tail, fan-ins near the shared
             # head; a label goes to the end of the line where it has more room.
             t = 0.72 if fan_out[int(m.tail[k])] >= fan_in[int(m.head[k])] else 0.28
-            x, y = _bezier(curve(k), t)
-            labels.append(_text(x, y + 3.5, str(int(m.flow[k])), anchor="middle",
-                                size=9.5, fill=colour, weight="bold",
-                                extra=' stroke="#ffffff" stroke-width="3" '
-                                      'paint-order="stroke"'))
+            wanted.append((k, colour, t))
     out.append("</g>")
     out.extend(out_boxes)
+    walls = [(x, y - (row_h - 4) / 2, x + box_w, y + (row_h - 4) / 2) for x, y in pos.values()]
+    walls += [(pos[i][0] - badge_w - 6, pos[i][1] - 8, pos[i][0] - 6, pos[i][1] + 8)
+              for i, sid in enumerate(m.sources) if m.unused.get(sid)]
+    walls += [(pos[p][0] + box_w + 6, pos[p][1] - 8, pos[p][0] + box_w + 78, pos[p][1] + 8)
+              for p in (m.sink_offset + j for j, sid in enumerate(m.sinks)
+                        if m.unmet.get(sid))]
+    texts = [str(int(m.flow[k])) for k, _, _ in wanted]
+    spots = place_labels([curve(k) for k, _, _ in wanted], texts, [t for _, _, t in wanted],
+                         [float(m.flow[k]) for k, _, _ in wanted], walls)
+    labels = [_text(spot[0], spot[1], text, anchor="middle", size=LABEL_SIZE, fill=colour,
+                    weight="bold", extra=' stroke="#ffffff" stroke-width="3" '
+                                         'paint-order="stroke"')
+              for (_, colour, _), text, spot in zip(wanted, texts, spots, strict=True)
+              if spot is not None]
     out.append('<g class="labels">' + "".join(labels) + "</g>")
     out.append('<g class="badges">')
     for i, sid in enumerate(m.sources):
@@ -150,14 +159,6 @@ def _diagram(m: _Model, standalone: bool) -> str:
     ]))
     out.append("</svg>")
     return "".join(out)
-
-
-def _bezier(points: Sequence[tuple[float, float]], t: float) -> tuple[float, float]:
-    (x0, y0), (x1, y1), (x2, y2), (x3, y3) = points
-    u = 1 - t
-    w = (u * u * u, 3 * u * u * t, 3 * u * t * t, t * t * t)
-    return (w[0] * x0 + w[1] * x1 + w[2] * x2 + w[3] * x3,
-            w[0] * y0 + w[1] * y1 + w[2] * y2 + w[3] * y3)
 
 
 def _badge(x: float, y: float, text: str, colour: str, cls: str, tip: str) -> str:

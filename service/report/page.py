@@ -116,9 +116,11 @@ def _answer_facts(m: _Model) -> list[tuple[str, str]]:
     a = m.answer
     cert = a.get("certificate", {})
     hard_unmet = sum(v for k, v in m.unmet.items() if _is_hard(m, k))
+    # An answer that is not valid only reports its figures: the page does not vouch for them.
+    said = "" if m.valid else ", as reported"
     items = [
-        ("objective", _esc(_num(a.get("objective")))),
-        ("dual objective", _esc(_num(cert.get("dual_objective")))),
+        ("objective" + said, _esc(_num(a.get("objective")))),
+        ("dual objective" + said, _esc(_num(cert.get("dual_objective")))),
         ("units routed", _esc(_num(a.get("flow_value", int(m.flow.sum()))))),
         ("arcs with flow", str(len(a.get("allocation", [])))),
         ("unmet demand", f"{sum(m.unmet.values())} ({hard_unmet} hard)"),

@@ -49,8 +49,11 @@ def _picture(m: _Model, standalone: bool) -> tuple[str | None, str]:
         f"The problem has {rows} sources, {len(m.nodes)} nodes, {cols} sinks and "
         f"{flows} arcs with flow: too many to draw legibly (a heat map is drawn up to "
         f"{HEATMAP_MAX} \u00d7 {HEATMAP_MAX}, a diagram up to {DIAGRAM_MAX_PER_COLUMN} places "
-        f"per column and {DIAGRAM_MAX_FLOW_ARCS} arcs with flow). The table of reduced costs "
-        "below summarises every arc instead.")
+        f"per column and {DIAGRAM_MAX_FLOW_ARCS} arcs with flow). "
+        # the SVG alone has no table: it says where the summary is
+        + ("The HTML report (format=html) summarises the reduced costs of every arc in a "
+           "table instead." if standalone else
+           "The table of reduced costs below summarises every arc instead."))
 
 
 def _too_large_svg(m: _Model, note: str) -> str:

@@ -52,7 +52,8 @@ def _caption(m: _Model) -> str:
     colour = "#1b5e20" if m.valid else _HARD
     checks = _checks(m)
     passed = len(checks) - len(_failed(m))
-    line = (f"objective {_num(m.answer.get('objective'))} \u00b7 {passed} of {len(checks)} "
+    line = (f"{'objective' if m.valid else 'reported objective'} "
+            f"{_num(m.answer.get('objective'))} \u00b7 {passed} of {len(checks)} "
             "checks passed \u00b7 certimatch audit")
     return ('<rect class="ground" width="100%" height="100%" fill="#ffffff"/>'
             + _text(16, 24, word, size=16, fill=colour, weight="bold")

@@ -1,11 +1,19 @@
 """A per-request time limit that frees the worker when it runs out.
 
-The limit is a real-time interval timer (SIGALRM) whose handler raises
-:class:`~service.errors.TimeLimitExceeded` in the request's thread: the request is
-abandoned whole, nothing of it is answered but the 503, and the worker takes the next
-request. The exception can only be raised between Python bytecodes, so a single long
-call into compiled code (one engine run) finishes before the request stops; the limit is
-therefore exact to within the longest such call.
+The limit is a real-time interval timer (SIGALRM) whose handler raises in the request's
+thread: the request is abandoned whole, nothing of it is answered but the error, and the
+worker takes the next request. The exception can only be raised between Python bytecodes,
+so a single long call into compiled code (one engine run) finishes before the request
+stops; the limit is therefore exact to within the longest such call.
+
+When the limit runs out, the CPU time the process spent on the request tells why:
+
+* it had the CPU (at least half of the limit in CPU seconds, or it lost less than
+  ``BUSY_LOST_S`` to other work): the work needs more than the limit, and the same limit
+  runs out again: :class:`~service.errors.TimeLimitExceeded` (4xx, no ``Retry-After``);
+* it did not (less than half of the limit in CPU seconds, and at least ``BUSY_LOST_S``
+  lost to other work on the machine): the same request may finish when the machine is
+  less busy: :class:`~service.errors.ServerBusy` (503 with ``Retry-After``).
 
 Signals reach only the main thread. gunicorn's sync workers, the Flask test client and
 the command line all serve requests there; elsewhere (a threaded server) the limit is
@@ -17,13 +25,41 @@ from __future__ import annotations
 import math
 import signal
 import threading
+import time
 from collections.abc import Iterator
 from contextlib import contextmanager
 from typing import Any
 
-from service.errors import TimeLimitExceeded
+from service.errors import ServerBusy, ServiceError, TimeLimitExceeded
 
-__all__ = ["deadline"]
+__all__ = ["BUSY_LOST_S", "BUSY_SHARE", "deadline", "time_limit_error"]
+
+#: The request counts as starved of CPU when its CPU seconds are less than this share of
+#: its limit...
+BUSY_SHARE = 0.5
+#: ...and it lost at least this many seconds to other work (less is scheduling noise).
+BUSY_LOST_S = 0.1
+
+#: The clocks, looked up at call time so that tests can stand in for them.
+_wall = time.monotonic
+_cpu = time.process_time
+
+
+def time_limit_error(seconds: float, what: str, cpu_s: float, elapsed_s: float
+                     ) -> ServiceError:
+    """The error for a limit of ``seconds`` that ran out after ``elapsed_s`` seconds, of
+    which the process spent ``cpu_s`` on the CPU (see the module docstring)."""
+    if cpu_s < BUSY_SHARE * seconds and elapsed_s - cpu_s >= BUSY_LOST_S:
+        return ServerBusy(
+            f"{what} ran out of its {seconds:g} s because the server was busy: it got "
+            f"{cpu_s:.3g} s of CPU in {elapsed_s:.3g} s; the same request may finish later",
+            headers={"Retry-After": str(max(1, math.ceil(seconds)))},
+            time_limit_s=seconds, cpu_s=round(cpu_s, 3))
+    return TimeLimitExceeded(
+        f"{what} took longer than its time_limit_s of {seconds:g} s, with the CPU to itself "
+        f"({cpu_s:.3g} s of CPU in {elapsed_s:.3g} s), so the same limit runs out again: ask "
+        "for a longer time_limit_s (up to the server's MAX_TIME_LIMIT_S) or send a smaller "
+        "problem", what=what, limit_s=seconds)
 
 
 @contextmanager
@@ -35,14 +71,12 @@ def deadline(seconds: float, what: str) -> Iterator[bool]:
         return
 
     armed = [True]
+    started = (_wall(), _cpu())
 
     def _expire(signum: int, frame: Any) -> None:
         if not armed[0]:
             return                          # fired while the block was already leaving
-        raise TimeLimitExceeded(
-            f"{what} took longer than {seconds:g} s; ask for a longer time_limit_s (up to the "
-            "server's MAX_TIME_LIMIT_S) or send a smaller problem",
-            headers={"Retry-After": str(max(1, math.ceil(seconds)))})
+        raise time_limit_error(seconds, what, _cpu() - started[1], _wall() - started[0])
 
     # The alarm may fire at any bytecode, even inside these finally blocks: the handler is
     # installed and the timer armed inside the outer try, so the handler is always put back;

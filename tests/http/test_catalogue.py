@@ -447,7 +447,8 @@ def test_a_request_out_of_time_leaves_no_alarm_handler_behind(client):
     try:
         body = dumps({**GOOD, "time_limit_s": 1e-6})
         resp = client.post("/v1/solve", data=body, content_type=JSON)
-        assert resp.status_code in (200, 503), resp.get_data(as_text=True)
+        # 422 time-limit; 503 server-busy only should this machine be busy at that moment
+        assert resp.status_code in (200, 422, 503), resp.get_data(as_text=True)
         assert signal.getitimer(signal.ITIMER_REAL) == (0.0, 0.0)
         assert signal.getsignal(signal.SIGALRM) == before
     finally:

@@ -144,15 +144,18 @@ def _large_dense(n: int) -> dict:
             "sinks": [{"id": f"t{j}"} for j in range(n)], "costs": costs}
 
 
-def test_a_request_past_its_time_limit_gets_503_and_the_worker_goes_on():
+def test_a_request_past_its_time_limit_gets_422_and_the_worker_goes_on(monkeypatch):
+    # the process counts as having had the CPU all along (tests/http/test_time_limits.py
+    # has the busy case), so the answer does not depend on this machine's load
+    monkeypatch.setattr(deadline_module, "_cpu", deadline_module._wall)
     client = create_app({"TESTING": True}).test_client()
     body = {**_large_dense(700), "time_limit_s": 0.001}
     response = client.post("/v1/solve", data=orjson.dumps(body),
                            content_type="application/json")
-    assert response.status_code == 503
+    assert response.status_code == 422
     assert response.content_type == "application/problem+json"
     assert response.get_json()["type"] == "urn:certimatch:problem:time-limit"
-    assert int(response.headers["Retry-After"]) >= 1
+    assert "Retry-After" not in response.headers
     assert "allocation" not in response.get_json()
     # the same process answers the next request in full
     again = client.post("/v1/solve", json=PROBLEM)
