@@ -78,10 +78,26 @@ def _reject_constant(name: str) -> Any:
     raise ValueError(f"{name} is not a JSON number")
 
 
+def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    obj = dict(pairs)
+    if len(obj) != len(pairs):
+        seen: set[str] = set()
+        for key, _ in pairs:
+            if key in seen:
+                raise ValueError(f"the key {key!r} is repeated within one object")
+            seen.add(key)
+    return obj
+
+
 def _parse_json(raw: bytes) -> Any:
-    """Strict JSON like the service's: no NaN or Infinity."""
+    """Strict JSON like the service's: no NaN or Infinity, no key repeated in an object.
+
+    A repeated key would otherwise be collapsed here (the last one winning) and the body
+    re-written from the collapsed copy: the service refuses it instead (400 naming it), and
+    so a file that fails to parse here is sent as it is, for the service to say so.
+    """
     try:
-        return json.loads(raw, parse_constant=_reject_constant)
+        return json.loads(raw, parse_constant=_reject_constant, object_pairs_hook=_unique_keys)
     except RecursionError:
         raise ValueError("nested too deeply") from None
 

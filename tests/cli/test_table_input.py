@@ -107,3 +107,17 @@ def test_a_table_without_source_rows_is_a_day_with_no_sources():
     assert table.problem == {"sources": [], "costs": [],
                              "sinks": [{"id": "ticket-1", "demand": 2},
                                        {"id": "ticket-2", "demand": 1, "penalty": 30}]}
+
+
+def test_a_repeated_key_in_a_json_file_is_not_collapsed_before_it_is_sent(capsys, tmp_path):
+    # The CLI must not re-write a file with a repeated key (the last one winning) and send
+    # the collapsed copy: the service refuses the body as it is, naming the key.
+    from service.cli import main
+
+    path = tmp_path / "twice.json"
+    path.write_text('{"sources": [{"id": "a", "supply": 1, "supply": 5}], '
+                    '"sinks": [{"id": "b"}], "costs": [[3]]}')
+    code = main(["solve", str(path), "--local", "--objective", "min", "-q"])
+    _, err = capsys.readouterr()
+    assert code == 1
+    assert "/sources/0/supply" in err
