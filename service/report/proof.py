@@ -11,7 +11,7 @@ from service.report.style import _esc, _num, _plural
 _CHECK_GROUPS = (
     ("feasible", ("allocation_arcs", "allocation_costs", "capacity", "conservation", "supply",
                   "demand", "unused", "unmet", "flow_value")),
-    ("shortfall", ("hard_shortfall", "shortfall_cut")),
+    ("shortfall", ("hard_shortfall", "unmet_demand_policy", "shortfall_cut")),
     ("cost", ("sense", "objective", "potentials", "dual_feasibility",
               "complementary_slackness", "dual_objective")),
 )

@@ -318,7 +318,8 @@ class _Checker:
         return sent, received
 
     def _amounts(self, name: str, rows: Any, actual: dict[str, int]) -> None:
-        """Reported unmet or unused amounts against the actual ones; unlisted means 0."""
+        """Reported unmet or unused amounts against the actual ones; unlisted means 0. An
+        unmet entry's optional ``hard`` says whether the sink's demand is hard."""
         if not isinstance(rows, list):
             self.fail(name, f"{name} must be a list")
             return
@@ -328,6 +329,11 @@ class _Checker:
             amount = count(row.get("amount")) if isinstance(row, dict) else None
             if key not in actual or key in listed or amount is None:
                 self.fail(name, f"entry {row!r} names no {name} amount of its own")
+                return
+            if name == "unmet" and "hard" in row and row["hard"] is not self.m.hard(key):
+                # optional; when given it must say whether the sink has a penalty
+                self.fail(name, f"entry {row!r}: the sink is "
+                          f"{'hard' if self.m.hard(key) else 'soft'}")
                 return
             listed[key] = amount
         for key, q in actual.items():

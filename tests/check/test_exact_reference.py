@@ -100,6 +100,7 @@ def _broken(change) -> set[str]:
     ("demand", lambda a: a["allocation"][1].update(flow=2, cost=50)),
     ("unused", lambda a: a.update(unused=[])),
     ("unmet", lambda a: a["unmet"].append({"id": "washer", "amount": 1})),
+    ("unmet", lambda a: a["unmet"][0].update(hard=True)),      # the washer has a penalty
     ("flow_value", lambda a: a.update(flow_value=3)),
     ("objective", lambda a: a.update(objective=95.5)),
     ("hard_shortfall", lambda a: a["certificate"].update(hard_shortfall=1)),

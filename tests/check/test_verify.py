@@ -115,7 +115,7 @@ def test_maximising_answer_verifies(solve, verify):
 
 def test_transshipment_answer_matches_the_hand_optimum_and_verifies(flow, verify):
     assert flow["objective"] == 36
-    assert flow["unmet"] == [{"id": "south", "amount": 2}]
+    assert flow["unmet"] == [{"id": "south", "amount": 2, "hard": False}]
     assert flow["unused"] == [{"id": "plant", "amount": 2}]
     assert checked(verify, FLOW, flow)["valid"] is True
 
