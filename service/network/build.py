@@ -34,10 +34,6 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
     n_src, n_snk, n_mid = len(sources), len(sinks), len(nodes) if nodes else 0
     _limit(n_src + n_snk + n_mid, settings.max_nodes, "sources + sinks + nodes", "MAX_NODES")
     errors: list[dict[str, str]] = []
-    if n_src == 0:
-        errors.append({"pointer": "/sources", "detail": "must hold at least one source"})
-    if n_snk == 0:
-        errors.append({"pointer": "/sinks", "detail": "must hold at least one sink"})
     groups = [(name, data.get(name)) for name in ID_TABLES]
     ids = declared_ids(data)
     errors.extend(_check_ids(ids, groups, settings.max_id_length))

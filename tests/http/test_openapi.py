@@ -516,7 +516,6 @@ SPEC_INVALID = {
     "negative penalty": (TECHNICIANS, "/sinks/2/penalty", -0.5),
     "unknown top-level field": (TECHNICIANS, "/priority", "high"),
     "unknown source field": (TECHNICIANS, "/sources/0/skill", "gas"),
-    "no sources": (TECHNICIANS, "/sources", []),
     "sources missing": (TECHNICIANS, "/sources", ...),
     "neither costs nor arcs": (TECHNICIANS, "/costs", ...),
     "both costs and arcs": (TECHNICIANS, "/arcs", []),
@@ -543,6 +542,10 @@ SPEC_VALID = {
     "null capacity is unbounded": (ARCS, "/arcs/0/capacity", None),
     "zero capacity": (ARCS, "/arcs/0/capacity", 0),
     "no arcs at all": (ARCS, "/arcs", []),
+    "an empty day, no tickets": ({"sources": [{"id": "tech-north"}], "sinks": [],
+                                  "costs": [[]]}, "/objective", "min"),
+    "an empty day, no technicians": ({"sources": [], "sinks": [{"id": "ticket-101"}],
+                                      "costs": []}, "/objective", "min"),
 }
 
 PROBLEM_SCHEMA = "/components/schemas/Problem"
