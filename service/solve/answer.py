@@ -43,6 +43,15 @@ def _value(net: Network, scaled: int) -> int | float:
     return scaled if net.cost_scale == 1 else scaled / net.cost_scale
 
 
+def _products(net: Network, amount: np.ndarray, cost: np.ndarray) -> np.ndarray:
+    """Row costs flow x cost in int64, refused first where the product could wrap."""
+    if len(amount):
+        top = float(np.abs(amount.astype(np.float64) * cost.astype(np.float64)).max())
+        if top >= 2.0**62:
+            _within_range(net, int(top))      # far beyond either bound: refused
+    return amount * cost
+
+
 def _within_range(net: Network, top: int) -> None:
     """OutOfRange unless a grid value of magnitude ``top`` can be written exactly."""
     limit = MAX_ANSWER_VALUE if net.cost_scale == 1 else FRACTIONAL_LIMIT * net.cost_scale
@@ -63,8 +72,7 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
     froms = [ids[i] for i in tail.tolist()]
     tos = [ids[i] for i in head.tolist()]
     flows = amount.tolist()
-    # certify bounded sum |cost x flow| below 2**62, so no product wraps
-    costs = _values(net, amount * net.arc_cost(arc) * net.sign)
+    costs = _values(net, _products(net, amount, net.arc_cost(arc) * net.sign))
     if net.from_matrix:
         allocation = [{"from": f, "to": t, "flow": q, "cost": c}
                       for f, t, q, c in zip(froms, tos, flows, costs, strict=True)]
