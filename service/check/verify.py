@@ -219,6 +219,11 @@ def _potentials(net: Network, cert: dict[str, Any], index: dict[str, int]
         name = keys[bad] if bad < len(keys) else _VIRTUAL[bad - len(keys)]
         return None, (f"potential of {name} is {reported[bad]}: every cost of the problem is "
                       "whole, so every potential must be a whole number")
+    if grid.dtype == object:
+        # Python ints: a potential beyond 2**60 grid units. Reduced costs and the dual
+        # objective do not change when every potential moves together, so measure them
+        # from the super-sink's; int64 again unless they really spread that far.
+        grid = _fit(grid - grid[-2])
     pi = np.zeros(net.n_user + 3, grid.dtype)
     pi[where] = grid[: len(keys)]
     pi[net.n_user:] = grid[len(keys):]

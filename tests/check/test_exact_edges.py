@@ -179,6 +179,17 @@ def test_a_free_potential_anywhere_in_range_is_valid(client, value):
     assert_agree(client, IDLE, answer, expected=True)
 
 
+@pytest.mark.parametrize("value", [2**53, 2.0**52 + 0.5])
+def test_a_huge_potential_on_an_allowed_cell_breaks_dual_feasibility(client, value):
+    # the same numbers, but the spare source may serve the fridge: its cell's reduced cost
+    # 2.5 - value + pi(fridge) is negative on an unbounded arc (and the spread of the
+    # potentials leaves int64, so the checker works in Python integers)
+    problem = {**IDLE, "costs": [[1.5, None], [2.5, None]]}
+    answer = with_number(solved(client, problem), "potential:idle", value)
+    valid, failed = assert_agree(client, problem, answer, expected=False)
+    assert "dual_feasibility" in failed, failed
+
+
 def test_potentials_shifted_by_10_13_are_valid(client):
     # reduced costs and D (pi(S) - pi(T)) do not change when every potential moves together
     answer = solved(client, IDLE)
