@@ -30,6 +30,21 @@ class AmountSchema(Schema):
     amount = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
 
 
+class UnmetSchema(Schema):
+    """Units of one sink left unmet, and whether its demand is hard (it has no penalty)."""
+
+    id = fields.String(required=True)
+    amount = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
+    hard = fields.Boolean(metadata={"description": "true when the sink has no penalty; "
+                                                   "checked when present"})
+
+
+class UnmetResultSchema(UnmetSchema):
+    """An unmet row as /v1/solve writes it: ``hard`` is always there."""
+
+    hard = fields.Boolean(required=True)
+
+
 class VirtualPotentialsSchema(Schema):
     """Potentials of the three virtual nodes of the extended network."""
 
@@ -67,7 +82,7 @@ class AnswerSchema(Schema):
     objective = Number(required=True, bound=MAX_ANSWER_VALUE)
     flow_value = Number(kind="count", bound=MAX_ANSWER_VALUE)
     allocation = RecordList(AllocationRowSchema, required=True)
-    unmet = RecordList(AmountSchema, required=True)
+    unmet = RecordList(UnmetSchema, required=True)
     unused = RecordList(AmountSchema, required=True)
     certificate = fields.Nested(CertificateSchema, required=True)
 
@@ -79,6 +94,7 @@ class SolveResultSchema(AnswerSchema):
     shape = fields.String(required=True, validate=validate.OneOf(SHAPES))
     solver = fields.String(required=True, validate=validate.OneOf(SOLVERS))
     flow_value = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
+    unmet = RecordList(UnmetResultSchema, required=True)
 
 
 class VerifyRequestSchema(ProblemSchema):

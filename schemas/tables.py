@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from itertools import chain, repeat
+from operator import is_not
 from typing import Any
 
 import numpy as np
@@ -56,6 +57,8 @@ class Table:
 
 
 def _column_kind(f: fields.Field) -> str:
+    if isinstance(f, fields.Boolean):
+        return "flag"
     if isinstance(f, fields.Integer):
         return "count"
     if isinstance(f, fields.Number):
@@ -69,8 +72,9 @@ class RecordList(fields.Field):
     """A JSON list of records whose columns are given by ``row_schema``; loads a Table.
 
     Integer fields of the row schema become whole numbers >= 0, other numbers finite
-    numbers, strings ids. ``load_default`` of a row field fills missing keys; a field
-    without one and not required may be absent or null (``present`` says where).
+    numbers, booleans JSON true or false, strings ids. ``load_default`` of a row field
+    fills missing keys; a field without one and not required may be absent or null
+    (``present`` says where).
 
     ``references`` names required id columns whose values name ids declared by the lists
     ``declared_in`` of the same document (their ``id`` keys, numbered across the lists in
@@ -139,6 +143,16 @@ class RecordList(fields.Field):
                          else "must be a non-empty string")
                 counted += n - len(bad)
                 continue
+            if kind == "flag":
+                vals, present, bad = _flags(col, nullable=optional)
+                for i in bad:
+                    _add(errors, i, key, "missing" if key not in rows[i]
+                         else "must be true or false")
+                counted += int(np.count_nonzero(present))
+                table.columns[key] = vals
+                if optional and default is missing:
+                    table.present[key] = present
+                continue
             bound, minimum = self.bounds[key]
             vals, present, bad = check_numbers(col, kind, nullable=optional, bound=bound,
                                                minimum=minimum)
@@ -189,12 +203,23 @@ class RecordList(fields.Field):
     @staticmethod
     def _absent(table: Table, key: str, kind: str, default: Any) -> None:
         """Fill a column no record has: its default, or zeros marked not present."""
-        dtype = np.int64 if kind == "count" else np.float64
+        dtype = {"count": np.int64, "flag": np.bool_}.get(kind, np.float64)
         if default is missing:
             table.columns[key] = np.zeros(table.length, dtype)
             table.present[key] = np.zeros(table.length, bool)
         else:
             table.columns[key] = np.full(table.length, default, dtype)
+
+
+def _flags(values: list[Any], *, nullable: bool) -> tuple[np.ndarray, np.ndarray, list[int]]:
+    """(values, present, bad) of a column of JSON true/false, null where allowed."""
+    n = len(values)
+    if set(map(type, values)) <= {bool}:
+        return np.array(values, bool).reshape(n), np.ones(n, bool), []
+    present = np.fromiter(map(is_not, values, repeat(None)), bool, n)
+    bad = [i for i, v in enumerate(values)
+           if type(v) is not bool and not (nullable and v is None)]
+    return np.array([v is True for v in values], bool).reshape(n), present, bad
 
 
 def _positions(names: list[Any], index: dict[str, int]) -> np.ndarray | None:

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 
-from service.check.exact import _dot, _first
+from service.check.exact import _dot, _first, _fit, _total
 from service.network.model import FORBIDDEN, Network
 
 #: Rows of a cost matrix checked at once: bounds the temporary to this x columns.
@@ -20,9 +20,13 @@ def _unbounded_negative(net: Network, pi: np.ndarray) -> tuple[str, int] | None:
         col_pi = pi[net.sink_offset: net.sink_offset + n_cols]
         for start in range(0, n_rows, _CHUNK_ROWS):
             block = net.dense[start: start + _CHUNK_ROWS]
-            # forbidden cells are 2**62: they stay far positive, no mask needed
+            # forbidden cells are 2**62: with int64 potentials (within 2**60) they stay far
+            # positive, no mask needed; Python-int potentials may be larger
             reduced = block - pi[start: start + len(block)][:, None] + col_pi[None, :]
-            hit = _first((reduced < 0).reshape(-1))
+            negative = reduced < 0
+            if pi.dtype == object:
+                negative &= block != FORBIDDEN
+            hit = _first(negative.reshape(-1))
             if hit is not None:
                 r, c = divmod(hit, n_cols)
                 return (f"{net.ids[start + r]} -> {net.ids[net.sink_offset + c]}",
@@ -117,5 +121,6 @@ def _virtual_arcs(net: Network, unmet: np.ndarray, sent: np.ndarray, shortfall: 
     cost[n_src + n_snk: n_src + n_snk + n_soft] = net.penalty[soft]
     cap = np.concatenate((net.supply, net.demand, net.demand[soft], [shortfall],
                           net.demand[hard]))
-    flow = np.concatenate((sent, net.demand, unmet[soft], [unmet[hard].sum()], unmet[hard]))
-    return tuple(np.asarray(column, np.int64) for column in (tail, head, cost, cap, flow))
+    # the pool's flow is a sum: beyond int64 when a forged allocation overfills the sinks
+    flow = np.concatenate((sent, net.demand, unmet[soft], [_total(unmet[hard])], unmet[hard]))
+    return (*(np.asarray(column, np.int64) for column in (tail, head, cost, cap)), _fit(flow))

@@ -7,7 +7,14 @@ from typing import Any
 import numpy as np
 
 from service.check.checks import _Checks
-from service.check.exact import _close, _first, _has_repeats, _ids_to_index
+from service.check.exact import (
+    _first,
+    _grid_values,
+    _has_repeats,
+    _ids_to_index,
+    _products,
+    _show,
+)
 from service.network.model import Network
 
 
@@ -74,18 +81,31 @@ def _allocation(net: Network, rows: Any, index: dict[str, int], checks: _Checks
     checks.add("allocation_arcs", None, "every row names one allowed arc")
     x = rows.columns["flow"].astype(np.int64)
     if "cost" in rows.present:
-        given = rows.present["cost"]
-        exact = x * net.arc_cost(arc) * net.sign
-        off = _first(given & ~_close(rows.columns["cost"], exact, net.cost_scale))
-        checks.add("allocation_costs", None if off is None else
-                   f"allocation row {off}: cost {rows.columns['cost'][off]}, flow x "
-                   f"arc cost is {exact[off] / net.cost_scale:g}",
+        checks.add("allocation_costs", _row_cost_differs(net, rows, arc, x),
                    "row costs are flow x arc cost")
     return arc, x
 
 
+def _row_cost_differs(net: Network, rows: Any, arc: np.ndarray, x: np.ndarray) -> str | None:
+    """The first row whose reported cost is not exactly flow x the caller's arc cost."""
+    given = rows.present["cost"]
+    exact = _products(x, net.arc_cost(arc) * net.sign)
+    reported, not_whole = _grid_values(rows.columns["cost"], net.cost_scale)
+    off = _first(given & (not_whole | (reported != exact)))
+    if off is None:
+        return None
+    return (f"allocation row {off}: cost {rows.columns['cost'][off]}, flow x arc cost is "
+            f"{_show(int(exact[off]), net.cost_scale)}")
+
+
 def _amounts_differ(rows: Any, actual: np.ndarray, ids: list[str], index: dict[str, int],
-                    start: int, count: int, kind: str) -> str | None:
+                    start: int, count: int, kind: str, hard: np.ndarray | None = None
+                    ) -> str | None:
+    """What is wrong with reported unmet or unused amounts, or None.
+
+    ``hard`` (unmet rows only) says which sinks have hard demand; a row's optional
+    ``hard`` flag must agree with it.
+    """
     where = _ids_to_index(rows.columns["id"], index) - start
     stray = _first((where < 0) | (where >= count))
     if stray is not None:
@@ -95,6 +115,14 @@ def _amounts_differ(rows: Any, actual: np.ndarray, ids: list[str], index: dict[s
     reported = np.zeros(count, np.int64)
     reported[where] = rows.columns["amount"]          # each at most once: checked above
     bad = _first(reported != actual)
-    if bad is None:
+    if bad is not None:
+        return f"{kind} {ids[start + bad]}: reported {reported[bad]}, actual {actual[bad]}"
+    if hard is None or "hard" not in rows.present:
         return None
-    return f"{kind} {ids[start + bad]}: reported {reported[bad]}, actual {actual[bad]}"
+    flags = rows.columns["hard"]
+    wrong = _first(rows.present["hard"] & (flags != hard[where]))
+    if wrong is None:
+        return None
+    really = "hard" if hard[where[wrong]] else "soft (it has a penalty)"
+    return (f"{kind} {rows.columns['id'][wrong]}: reported hard "
+            f"{str(bool(flags[wrong])).lower()}, but its demand is {really}")

@@ -10,8 +10,8 @@ certifier, and follows the definitions (README, "The certificate"):
   ``D (pi(S) - pi(T)) - sum_a u_a max(0, -c^pi_a)`` is a lower bound on every flow's cost
   when no unbounded arc has a negative reduced cost, and here it equals the cost.
 
-All arithmetic is exact on integers (costs scaled as in the network model); a reported
-fractional value is compared after scaling with the relative tolerance FLOAT_TOLERANCE.
+All arithmetic is exact (:mod:`service.check.exact`): integers on the problem's cost grid,
+sums and products that cannot wrap, and reported numbers read exactly (README, "Numbers").
 """
 
 from __future__ import annotations
@@ -28,14 +28,29 @@ from service.check.duals import (
     _unbounded_negative,
     _virtual_arcs,
 )
-from service.check.exact import FLOAT_TOLERANCE, _close, _dot, _first, _ids_to_index, _to_grid
+from service.check.exact import (
+    _balances,
+    _dot,
+    _first,
+    _fit,
+    _grid_value,
+    _grid_values,
+    _ids_to_index,
+    _show,
+    _total,
+)
 from service.check.flows import _allocation, _amounts_differ
 from service.network.model import Network
 
-__all__ = ["FLOAT_TOLERANCE", "verify_answer"]
+__all__ = ["verify_answer"]
 
 
 _VIRTUAL = ("super_source", "super_sink", "hard_pool")
+
+#: The checks after the node balances, skipped when those cannot be read.
+_AFTER_BALANCES = ["unused", "unmet", "objective", "hard_shortfall", "unmet_demand_policy",
+                   "shortfall_cut", "potentials", "dual_feasibility",
+                   "complementary_slackness", "dual_objective"]
 
 
 def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
@@ -53,9 +68,7 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
 
     used = _allocation(net, answer["allocation"], index, checks)
     if used is None:
-        checks.skip(["capacity", "conservation", "supply", "demand", "unused", "unmet",
-                     "objective", "hard_shortfall", "shortfall_cut", "potentials",
-                     "dual_feasibility", "complementary_slackness", "dual_objective"],
+        checks.skip(["capacity", "conservation", "supply", "demand", *_AFTER_BALANCES],
                     "the allocation does not name allowed arcs")
         return _result(checks)
     arc, x = used
@@ -68,9 +81,7 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     checks.add("capacity", None if over is None else
                f"arc {ids[tail[over]]} -> {ids[head[over]]} carries {x[over]} "
                f"over its capacity {cap[over]}", "every arc within its capacity")
-    net_out = np.zeros(net.n_user, np.int64)
-    np.add.at(net_out, tail, x)
-    np.subtract.at(net_out, head, x)
+    net_out = _fit(_balances(net.n_user, tail, head, x))
     off = net.sink_offset
     sent = net_out[: net.n_sources]
     through = net_out[net.n_sources: off]
@@ -87,53 +98,51 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     checks.add("demand", None if bad is None else
                f"sink {ids[off + bad]} receives {received[bad]}, allowed 0 to "
                f"{net.demand[bad]}", "each sink receives between 0 and its demand")
+    if net_out.dtype == object:
+        # a balance beyond 2**60: one of the three checks above has failed
+        checks.skip(_AFTER_BALANCES, "node balances beyond 64-bit range")
+        return _result(checks)
     unused = net.supply - sent
     unmet = net.demand - received
     checks.add("unused", _amounts_differ(answer["unused"], unused, ids, index, 0,
                                          net.n_sources, "source"),
                "unused supply as reported")
     checks.add("unmet", _amounts_differ(answer["unmet"], unmet, ids, index, off,
-                                        net.n_sinks, "sink"),
+                                        net.n_sinks, "sink", hard=~net.soft),
                "unmet demand as reported")
     if "flow_value" in answer:
-        routed = int(sent.sum())
+        routed = _total(sent)
         checks.add("flow_value", None if answer["flow_value"] == routed else
                    f"flow_value is {answer['flow_value']}, the allocation routes {routed}",
                    "flow_value as routed")
     primal = _dot(cost, x) + _dot(net.penalty[net.soft], unmet[net.soft])
     sign = net.sign
-    checks.add("objective", None if bool(_close(answer["objective"], sign * primal, scale)) else
-               f"objective is {answer['objective']}, recomputed {sign * primal / scale:g}",
-               f"objective recomputed: {sign * primal / scale:g}")
+    checks.add("objective",
+               None if _grid_value(answer["objective"], scale) == sign * primal else
+               f"objective is {answer['objective']}, recomputed {_show(sign * primal, scale)}",
+               f"objective recomputed: {_show(sign * primal, scale)}")
 
     # -- least hard shortfall: the cut --------------------------------------------------
     shortfall = cert["hard_shortfall"]
-    hard_unmet = int(unmet[~net.soft].sum())
+    hard_unmet = _total(unmet[~net.soft])
     checks.add("hard_shortfall", None if hard_unmet == shortfall else
                f"hard demand left unmet is {hard_unmet}, the certificate says {shortfall}",
                f"{shortfall} units of hard demand unmet")
+    checks.add("unmet_demand_policy", _policy_breach(net, hard_unmet, shortfall),
+               "/unmet_demand is reject: no hard demand unmet" if net.reject_unmet else
+               "/unmet_demand is minimize: hard demand may be left unmet")
     checks.add("shortfall_cut", _cut_differs(net, cert["cut"], index, shortfall),
                f"no flow can leave less than {shortfall} units of hard demand unmet")
 
     # -- least cost: the potentials -----------------------------------------------------
-    keys, values = cert["potentials"]
-    where = _ids_to_index(keys, index)
-    vp = cert["virtual_potentials"]
-    grid = _to_grid(np.append(values, [vp[name] for name in _VIRTUAL]), scale)
-    missing = [i for i in ids if i not in set(keys)] if len(set(keys)) != len(ids) else []
-    if (where < 0).any() or missing or grid is None:
-        checks.add("potentials", f"potentials missing for {missing[:5]}" if missing else
-                   f"potential for unknown id {keys[_first(where < 0) or 0]!r}"
-                   if (where < 0).any() else
-                   f"potentials must be multiples of {1 / scale:g} within 64-bit range", "")
+    pi, wrong = _potentials(net, cert, index)
+    if pi is None:
+        checks.add("potentials", wrong, "")
         checks.skip(["dual_feasibility", "complementary_slackness", "dual_objective"],
                     "potentials incomplete")
         return _result(checks)
     checks.add("potentials", None, "one potential per source, sink and node")
     S, T, P = net.n_user, net.n_user + 1, net.n_user + 2
-    pi = np.zeros(net.n_user + 3, np.int64)
-    pi[where] = grid[: len(keys)]
-    pi[[S, T, P]] = grid[len(keys):]
 
     # Virtual arcs, then user arcs: every arc is checked, whatever its representation.
     v_tail, v_head, v_cost, v_cap, v_x = _virtual_arcs(net, unmet, sent, shortfall, S, T, P)
@@ -142,18 +151,19 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     bad_dual_arc = _unbounded_negative(net, pi)
     checks.add("dual_feasibility", None if bad_dual_arc is None else
                f"unbounded arc {bad_dual_arc[0]} has negative reduced cost "
-               f"{bad_dual_arc[1] / scale:g}", "no unbounded arc has a negative reduced cost")
+               f"{_show(bad_dual_arc[1], scale)}", "no unbounded arc has a negative reduced cost")
     bad_v = _first(((v_reduced > 0) & (v_x > 0)) | ((v_reduced < 0) & (v_x < v_cap)))
-    bad_u = _first(u_reduced > 0)
+    # a row of flow 0 says nothing: only arcs that carry flow need a reduced cost <= 0
+    bad_u = _first((u_reduced > 0) & (x > 0))
     saturated = _bounded_below_capacity(net, pi, arc, x)
     if bad_v is not None:
         labels = list(ids) + list(_VIRTUAL)
         slack = (f"arc {labels[v_tail[bad_v]]} -> {labels[v_head[bad_v]]} has reduced cost "
-                 f"{v_reduced[bad_v] / scale:g} and flow {v_x[bad_v]} of capacity "
+                 f"{_show(int(v_reduced[bad_v]), scale)} and flow {v_x[bad_v]} of capacity "
                  f"{v_cap[bad_v]}")
     elif bad_u is not None:
         slack = (f"arc {ids[tail[bad_u]]} -> {ids[head[bad_u]]} has reduced cost "
-                 f"{u_reduced[bad_u] / scale:g} and flow {x[bad_u]}")
+                 f"{_show(int(u_reduced[bad_u]), scale)} and flow {x[bad_u]}")
     elif saturated is not None:
         slack = f"arc {saturated} has negative reduced cost and is below its capacity"
     else:
@@ -165,13 +175,56 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
             - _bounded_dual_term(net, pi))
     reported_dual = cert["dual_objective"]
     if dual != primal:
-        bad_dual = f"dual objective {sign * dual / scale:g} differs from the cost " \
-                   f"{sign * primal / scale:g}"
-    elif not bool(_close(reported_dual, sign * dual, scale)):
-        bad_dual = f"dual_objective is {reported_dual}, recomputed {sign * dual / scale:g}"
+        bad_dual = (f"dual objective {_show(sign * dual, scale)} differs from the cost "
+                    f"{_show(sign * primal, scale)}")
+    elif _grid_value(reported_dual, scale) != sign * dual:
+        bad_dual = f"dual_objective is {reported_dual}, recomputed {_show(sign * dual, scale)}"
     else:
         bad_dual = None
     checks.add("dual_objective", bad_dual, "dual objective equals the objective")
     return _result(checks)
 
 
+def _policy_breach(net: Network, hard_unmet: int, shortfall: int) -> str | None:
+    """Under ``unmet_demand: "reject"`` an answer leaving hard demand unmet answers another
+    problem (the one that allows it): what is wrong, or None."""
+    if not net.reject_unmet or (hard_unmet == 0 and shortfall == 0):
+        return None
+    if hard_unmet > 0:
+        return f"/unmet_demand is reject but {hard_unmet} units of hard demand are unmet"
+    return f"/unmet_demand is reject but the certificate reports a hard shortfall of {shortfall}"
+
+
+def _potentials(net: Network, cert: dict[str, Any], index: dict[str, int]
+                ) -> tuple[np.ndarray | None, str | None]:
+    """(potential of every user node, then S, T, P, on the grid; None) or (None, what is
+    wrong). One pass over the ids: a mask of the ids covered, not a search per id."""
+    keys, values = cert["potentials"]
+    where = _ids_to_index(keys, index)
+    covered = np.zeros(net.n_user, bool)
+    covered[where[where >= 0]] = True
+    missing = np.flatnonzero(~covered)
+    if len(missing):
+        names = ", ".join(net.ids[i] for i in missing[:5].tolist())
+        more = f" and {len(missing) - 5} more" if len(missing) > 5 else ""
+        return None, f"potentials missing for {names}{more}"
+    unknown = _first(where < 0)
+    if unknown is not None:
+        return None, f"potential for unknown id {keys[unknown]!r}"
+    vp = cert["virtual_potentials"]
+    reported = np.append(values, [vp[name] for name in _VIRTUAL])
+    grid, not_whole = _grid_values(reported, net.cost_scale)
+    bad = _first(not_whole)
+    if bad is not None:
+        name = keys[bad] if bad < len(keys) else _VIRTUAL[bad - len(keys)]
+        return None, (f"potential of {name} is {reported[bad]}: every cost of the problem is "
+                      "whole, so every potential must be a whole number")
+    if grid.dtype == object:
+        # Python ints: a potential beyond 2**60 grid units. Reduced costs and the dual
+        # objective do not change when every potential moves together, so measure them
+        # from the super-sink's; int64 again unless they really spread that far.
+        grid = _fit(grid - grid[-2])
+    pi = np.zeros(net.n_user + 3, grid.dtype)
+    pi[where] = grid[: len(keys)]
+    pi[net.n_user:] = grid[len(keys):]
+    return pi, None

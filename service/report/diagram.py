@@ -27,7 +27,7 @@ def _diagram(m: _Model, standalone: bool) -> str:
     columns = [("sources", m.sources, 0), ("nodes", m.nodes, len(m.sources)),
                ("sinks", m.sinks, m.sink_offset)]
     columns = [c for c in columns if c[1]]
-    tallest = max(len(c[1]) for c in columns)
+    tallest = max((len(c[1]) for c in columns), default=0)     # an empty day has no places
     row_h = 24.0 if tallest <= 30 else 15.0
     font = 11.0 if tallest <= 30 else 9.0
     box_w = min(max((len(p) for p in m.places), default=4), LABEL_CHARS) * _CHAR_W * (

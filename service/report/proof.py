@@ -14,7 +14,7 @@ from service.report.style import _esc, _num, _plural
 _CLAIMS = {
     "possible": ("allocation_arcs", "capacity", "conservation", "supply", "demand"),
     "reported": ("allocation_costs", "unused", "unmet", "flow_value", "objective"),
-    "shortfall": ("hard_shortfall", "shortfall_cut"),
+    "shortfall": ("hard_shortfall", "unmet_demand_policy", "shortfall_cut"),
     "bound": ("sense", "potentials", "dual_feasibility", "dual_objective"),
     "slackness": ("complementary_slackness",),
 }

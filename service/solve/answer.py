@@ -16,18 +16,49 @@ from service.network.model import Network
 from service.solve.certificate import Certificate
 from service.solve.dispatch import Solution
 
+#: Fractional numbers of an answer stay below this magnitude (see ``_values``).
+FRACTIONAL_LIMIT = 2**33
+#: The bound of answer numbers, as error details name it.
+ANSWER_BOUND = ("|value| below 2**33 (8,589,934,592) for fractional costs; 2**53 for "
+                "whole-number costs")
+
 
 def _values(net: Network, scaled: np.ndarray) -> list:
+    """Grid values as the numbers of the answer; OutOfRange when one cannot be written exactly.
+
+    Whole-number data leaves as integers, exact in JSON below 2**53. Fractional data leaves
+    as the double nearest to the decimal, which prints as that decimal (so reads back onto
+    the same grid value) only below 2**33: from there on doubles are spaced 2**-19 or more
+    apart, wider than the grid (IEEE 754 binary64).
+    """
+    if len(scaled):
+        _within_range(net, int(np.abs(scaled).max()))
     if net.cost_scale == 1:
-        if len(scaled) and int(np.abs(scaled).max()) >= MAX_ANSWER_VALUE:
-            raise OutOfRange("a cost, potential or objective of this problem reaches 2**53, "
-                             "beyond exact JSON numbers; use smaller costs")
         return scaled.tolist()
     return (scaled / net.cost_scale).tolist()
 
 
 def _value(net: Network, scaled: int) -> int | float:
-    return _values(net, np.array([scaled], np.int64))[0]
+    _within_range(net, abs(scaled))
+    return scaled if net.cost_scale == 1 else scaled / net.cost_scale
+
+
+def _products(net: Network, amount: np.ndarray, cost: np.ndarray) -> np.ndarray:
+    """Row costs flow x cost in int64, refused first where the product could wrap."""
+    if len(amount):
+        top = float(np.abs(amount.astype(np.float64) * cost.astype(np.float64)).max())
+        if top >= 2.0**62:
+            _within_range(net, int(top))      # far beyond either bound: refused
+    return amount * cost
+
+
+def _within_range(net: Network, top: int) -> None:
+    """OutOfRange unless a grid value of magnitude ``top`` can be written exactly."""
+    limit = MAX_ANSWER_VALUE if net.cost_scale == 1 else FRACTIONAL_LIMIT * net.cost_scale
+    if top >= limit:
+        raise OutOfRange(f"a cost, potential or objective of this answer would reach "
+                         f"{top / net.cost_scale:.10g}, beyond what JSON numbers hold exactly: "
+                         f"answer numbers need {ANSWER_BOUND}; use smaller costs or quantities")
 
 
 def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[str, Any]:
@@ -41,7 +72,7 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
     froms = [ids[i] for i in tail.tolist()]
     tos = [ids[i] for i in head.tolist()]
     flows = amount.tolist()
-    costs = _values(net, amount * net.arc_cost(arc) * net.sign)
+    costs = _values(net, _products(net, amount, net.arc_cost(arc) * net.sign))
     if net.from_matrix:
         allocation = [{"from": f, "to": t, "flow": q, "cost": c}
                       for f, t, q, c in zip(froms, tos, flows, costs, strict=True)]
@@ -53,6 +84,7 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
     short = np.zeros(net.n_sinks, np.int64)
     short[ext.soft_sinks] = xv[ext.blocks["soft"]]
     short[ext.hard_sinks] = xv[ext.blocks["hard"]]
+    short_at = np.flatnonzero(short).tolist()
     idle = net.supply - xv[ext.blocks["supply"]]
     sign = net.sign
     side = solution.shortfall.sink_side
@@ -69,8 +101,8 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
         "objective": _value(net, sign * cert.primal),
         "flow_value": int(xv[ext.blocks["supply"]].sum()),
         "allocation": allocation,
-        "unmet": [{"id": ids[off + i], "amount": int(short[i])}
-                  for i in np.flatnonzero(short).tolist()],
+        "unmet": [{"id": ids[off + i], "amount": int(short[i]), "hard": hard}
+                  for i, hard in zip(short_at, (~net.soft[short_at]).tolist(), strict=True)],
         "unused": [{"id": ids[i], "amount": int(idle[i])}
                    for i in np.flatnonzero(idle).tolist()],
         "certificate": {

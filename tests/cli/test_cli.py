@@ -125,7 +125,7 @@ def test_same_shortage_without_reject_is_a_plan_with_exit_3(capsys, tmp_path):
         "costs": [[3, 4]],
     }
     answer = _solve_local(capsys, _write(tmp_path, problem), expect=3)
-    assert answer["unmet"][0]["id"] == "stop-2" and answer["unmet"][0]["amount"] == 1
+    assert answer["unmet"] == [{"id": "stop-2", "amount": 1, "hard": True}]
 
 
 def test_malformed_file_exits_1_with_the_problem_document(capsys, tmp_path):
@@ -293,7 +293,7 @@ def test_csv_table_is_solved_with_supply_demand_and_penalty(capsys, tmp_path):
     assert answer["objective"] == 92
     assert {(r["from"], r["to"], r["flow"]) for r in answer["allocation"]} == {
         ("tech-a", "ticket-2", 2), ("tech-b", "ticket-1", 1)}
-    assert answer["unmet"] == [{"id": "ticket-3", "amount": 1}]
+    assert answer["unmet"] == [{"id": "ticket-3", "amount": 1, "hard": False}]
 
 
 def test_csv_empty_cells_are_pairs_not_allowed(capsys, tmp_path):

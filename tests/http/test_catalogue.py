@@ -224,8 +224,9 @@ CATALOGUE: list[Bad] = [
     invalid("missing-sources", without(G, "sources"), "/sources"),
     invalid("sources-null", with_(G, sources=None), "/sources"),
     invalid("sources-an-object", with_(G, sources={"id": "r0"}), "/sources"),
-    invalid("empty-sources", with_(ARCS, sources=[], arcs=[]), "/sources"),
-    invalid("empty-sinks", with_(G, sinks=[], costs=[[], [], []]), "/sinks"),
+    # no sources or no sinks is an empty day (200); a matrix that disagrees is not
+    invalid("no-sources-but-matrix-rows", with_(G, sources=[]), "/costs"),
+    invalid("no-sinks-but-matrix-columns", with_(G, sinks=[]), "/costs/0"),
     invalid("source-not-an-object", with_(G, sources=[{"id": "r0"}, "r1", {"id": "r2"}]),
             "/sources/1"),
     invalid("id-a-number", with_(G, sources=[{"id": 7}, *S3[1:]]), "/sources/0/id"),

@@ -179,20 +179,26 @@ def test_missing_sources(client):
     assert "missing" in detail_at(doc, "/sources")
 
 
-def test_empty_sources(client):
-    body = problem_with(ARCS, sources=[], arcs=[])
-    doc = assert_invalid(client, body, ["/sources"])
-    assert "at least one" in detail_at(doc, "/sources")
+@pytest.mark.parametrize("body", [problem_with(ARCS, sources=[], arcs=[]),
+                                  problem_with(sources=[], costs=[]),
+                                  problem_with(sinks=[], costs=[[], [], []])],
+                         ids=["no sources, arcs", "no sources, matrix", "no sinks, matrix"])
+def test_an_empty_day_is_no_error(client, body):
+    # DESIGN 5: no sources or no sinks is an empty day, answered with an empty allocation
+    # (the answer's exactness is checked in tests/check/test_exact_edges.py)
+    resp = send(client, body)
+    assert resp.status_code == 200, resp.get_json()
+    assert resp.get_json()["allocation"] == []
 
 
-def test_empty_sources_with_an_empty_matrix(client):
-    assert_invalid(client, problem_with(sources=[], costs=[]), ["/sources"])
+def test_no_sources_but_matrix_rows(client):
+    doc = assert_invalid(client, problem_with(sources=[]), ["/costs"])
+    assert "expected 0" in detail_at(doc, "/costs")
 
 
-def test_empty_sinks(client):
-    body = problem_with(sinks=[], costs=[[], [], []])
-    doc = assert_invalid(client, body, ["/sinks"])
-    assert "at least one" in detail_at(doc, "/sinks")
+def test_no_sinks_but_matrix_columns(client):
+    doc = assert_invalid(client, problem_with(sinks=[]), ["/costs/0"])
+    assert "expected 0" in detail_at(doc, "/costs/0")
 
 
 @pytest.mark.parametrize(("change", "pointer"), [
@@ -449,7 +455,7 @@ def test_the_same_shortfall_without_reject_is_answered(client):
     assert resp.status_code == 200
     answer = resp.get_json()
     assert answer["certificate"]["hard_shortfall"] == 3
-    assert answer["unmet"] == [{"id": "Y", "amount": 3}]
+    assert answer["unmet"] == [{"id": "Y", "amount": 3, "hard": True}]
 
 
 # -- no bad input gives 500 -------------------------------------------------------------------

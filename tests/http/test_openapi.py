@@ -261,7 +261,7 @@ def _number_checks() -> Iterator[tuple[str, dict[str, Any], str, int, int | str 
                 row_name = f.row_schema.__name__
                 row = _properties(row_name)
                 for row_key, kind, _ in f.specs:
-                    if kind != "id":
+                    if kind not in ("id", "flag"):        # a flag is true or false, no bound
                         yield (f"{row_name.removesuffix('Schema')}.{row_key}",
                                _deref(row.get(row_key, {})), kind, *f.bounds[row_key])
                 continue
@@ -520,7 +520,6 @@ SPEC_INVALID = {
     "negative penalty": (TECHNICIANS, "/sinks/2/penalty", -0.5),
     "unknown top-level field": (TECHNICIANS, "/priority", "high"),
     "unknown source field": (TECHNICIANS, "/sources/0/skill", "gas"),
-    "no sources": (TECHNICIANS, "/sources", []),
     "sources missing": (TECHNICIANS, "/sources", ...),
     "neither costs nor arcs": (TECHNICIANS, "/costs", ...),
     "both costs and arcs": (TECHNICIANS, "/arcs", []),
@@ -548,6 +547,10 @@ SPEC_VALID = {
     "null capacity is unbounded": (ARCS, "/arcs/0/capacity", None),
     "zero capacity": (ARCS, "/arcs/0/capacity", 0),
     "no arcs at all": (ARCS, "/arcs", []),
+    "an empty day, no tickets": ({"sources": [{"id": "tech-north"}], "sinks": [],
+                                  "costs": [[]]}, "/objective", "min"),
+    "an empty day, no technicians": ({"sources": [], "sinks": [{"id": "ticket-101"}],
+                                      "costs": []}, "/objective", "min"),
 }
 
 PROBLEM_SCHEMA = "/components/schemas/Problem"

@@ -79,6 +79,22 @@ def test_digits_beyond_the_sixth_are_rounded():
     assert net.arcs.cost.tolist() == [123457, 123456, -1]
 
 
+def test_a_seventh_decimal_5_is_a_tie_of_the_decimal_rounded_half_to_even():
+    # The rule rounds the decimal each number stands for (its shortest repr), half to
+    # even; rounding the double instead (np.rint(c * 10**6)) gives 1000001, 32123457, 125
+    # and 251 for the first four, whose doubles lie off the decimal tie.
+    # Reference: fractions.Fraction of the repr, rounded (Python's round is half to even).
+    from fractions import Fraction
+    costs = [1.0000005, 32.1234565, 0.0001255, 0.0002505, -8.0000005, 999999999.9999995]
+    net = net_of(matrix([costs]))
+    expected = [round(Fraction(repr(c)) * 10**6) for c in costs]
+    assert expected == [1000000, 32123456, 126, 250, -8000000, 1000000000000000]   # by hand
+    assert net.arcs.cost.tolist() == expected
+    penalised = net_of({"sources": [{"id": "s"}], "sinks": [{"id": "t", "penalty": 0.0002535}],
+                        "costs": [[1]]})
+    assert penalised.penalty.tolist() == [254]
+
+
 def test_a_fractional_penalty_alone_moves_costs_to_the_grid():
     net = net_of({"sources": [{"id": "s"}], "sinks": [{"id": "t", "penalty": 0.5}],
                   "costs": [[3]]})

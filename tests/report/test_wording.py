@@ -40,6 +40,7 @@ RESTS_ON = {
     "objective": ["figures reported are this allocation"],
     "hard_shortfall": ["hard demand is met", "less hard demand unmet"],
     "shortfall_cut": ["hard demand is met", "less hard demand unmet"],
+    "unmet_demand_policy": ["hard demand is met", "less hard demand unmet"],
     "sense": ["than the dual objective"],
     "potentials": ["than the dual objective"],
     "dual_feasibility": ["than the dual objective"],
