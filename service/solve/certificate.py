@@ -65,6 +65,7 @@ class Certificate:
     potential: np.ndarray     # per node of the extended network
     primal: int               # min-form cost of the flow
     dual: int                 # dual objective of the potentials
+    method: str = ""          # how the potentials were found (for the benchmark and logs)
 
 
 def certify(net: Network, solution: Solution) -> Certificate:
@@ -108,8 +109,11 @@ def certify(net: Network, solution: Solution) -> Certificate:
         room = ~arcs.bounded | (x < arcs.capacity)
         parts.append((arcs.tail[room], arcs.head[room], arcs.cost[room]))
     tail, head, cost = (np.concatenate([p[k] for p in parts]) for k in range(3))
-    pi = _from_candidate(net, ext, solution, xv, (tail, head, cost), block)
-    if pi is None:
+    found = _from_candidate(net, ext, solution, xv, (tail, head, cost), block)
+    if found is not None:
+        pi, method = found
+    else:
+        method = "bellman-ford"
         paths = bellman_ford(ext.n_nodes, tail, head, cost, dense=block, smallest_first=True)
         if not paths.converged:
             raise CertificateFailure("the residual graph has a negative cycle: the engine's "
@@ -125,22 +129,24 @@ def certify(net: Network, solution: Solution) -> Certificate:
     dual = net.total_demand * int(pi[ext.S] - pi[ext.T]) - penalty
     if dual != primal:
         raise CertificateFailure(f"dual objective {dual} differs from the cost {primal}")
-    return Certificate(ext=ext, virtual_flow=xv, potential=pi, primal=primal, dual=dual)
+    return Certificate(ext=ext, virtual_flow=xv, potential=pi, primal=primal, dual=dual,
+                       method=method)
 
 
 def _from_candidate(net: Network, ext: Extended, solution: Solution, xv: np.ndarray,
                     residual: tuple[np.ndarray, np.ndarray, np.ndarray],
-                    block: DenseBlock | None) -> np.ndarray | None:
-    """Exact potentials from the engine's duals or the free-arc forest; None if neither."""
-    candidate = solution.duals
+                    block: DenseBlock | None) -> tuple[np.ndarray, str] | None:
+    """Exact potentials from the engine's duals or the free-arc forest, and which; None
+    when there is no candidate or it could not be repaired within the rounds allowed."""
+    candidate, source = solution.duals, "duals"
     if candidate is None and solution.free_arcs and block is None:
-        candidate = _forest(net, ext, solution, xv)
+        candidate, source = _forest(net, ext, solution, xv), "free-arc forest"
     if candidate is None:
         return None
     found = exact_potentials(ext.n_nodes, *residual, candidate, max_rounds=REPAIR_ROUNDS)
     if not found.ok or (block is not None and not _block_holds(block, found.pi)):
         return None
-    return found.pi
+    return found.pi, f"{source} + {found.rounds} rounds"
 
 
 def _forest(net: Network, ext: Extended, solution: Solution, xv: np.ndarray) -> np.ndarray:
