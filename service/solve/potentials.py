@@ -32,6 +32,12 @@ computes it exactly, and a losing candidate rounds to at least the winner + 1 (r
 is monotone): no tie or inversion. Arcs with ``r >= 2**53`` are left out (no label
 in ``(-2**53, 0]`` can violate them). Labels reaching ``-2**53`` stop the method.
 
+Each node's most negative incoming arc (or, lacking one, an arc of length 0, unless
+those close a cycle) makes a forest; after each Dijkstra the labels
+are also relaxed down every path of that forest at once (pointer jumping, log(depth)
+vectorised passes), so a long path of negative arcs (a chain whose arcs all sit at a
+bound) costs a round or two instead of one round per arc.
+
 Cost: one O(m) pass when the candidate is exact; else O(rounds x (m + n log n)) plus a
 linear-time sort, with ``rounds`` capped by the caller (who falls back to Bellman-Ford).
 """
@@ -126,20 +132,66 @@ def _rounds(n: int, tail: np.ndarray, head: np.ndarray, r: np.ndarray,
     data = np.concatenate([w.astype(np.float64), np.zeros(n)])
     graph = csr_array((data, indices, indptr), shape=(n + 1, n + 1))
     root = slice(len(w), len(w) + n)
-    labels = np.zeros(n, np.int64)
+    # zero-length arcs bridge the gaps of a negative path (a chain's 0-cost links); if
+    # they close a cycle of parents (free arcs are 0 both ways), negative arcs alone
+    zero = r == 0
+    parent, step = _negative_forest(n, tn, hn, rn, (tail[zero], head[zero]))
+    labels = _down_the_forest(np.zeros(n, np.int64), parent, step)
+    if labels is None:
+        parent, step = _negative_forest(n, tn, hn, rn, (tail[:0], head[:0]))
+        labels = _down_the_forest(np.zeros(n, np.int64), parent, step)
+    if labels is None:
+        return None, 0              # a cycle of negative arcs: no potentials exist
     for done in range(1, cap + 1):
         low = int(labels.min())
         if -low >= _EXACT:
             return None, done       # float64 distances would no longer be exact
         graph.data[root] = (labels - low).astype(np.float64)
         dist = dijkstra(graph, directed=True, indices=n)[:n]
-        labels = np.rint(dist).astype(np.int64) + low
+        closed = np.rint(dist).astype(np.int64) + low
+        down = _down_the_forest(closed, parent, step)
+        assert down is not None     # the same forest settled before
+        labels = down.copy()
         through = labels[tn] + rn
         better = through < labels[hn]
-        if not better.any():
+        if not better.any() and np.array_equal(down, closed):
             return labels, done
         np.minimum.at(labels, hn[better], through[better])
     return None, cap
+
+
+def _negative_forest(n: int, tail: np.ndarray, head: np.ndarray, length: np.ndarray,
+                     zero: tuple[np.ndarray, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Each node's most negative incoming arc, as (parent, length) per node; a node with
+    none takes an incoming arc of length 0 if it has one (``zero``: their tails, heads),
+    else is its own parent at length 0."""
+    parent, step = np.arange(n), np.zeros(n, np.int64)
+    parent[zero[1]] = zero[0]               # any one per head will do
+    if len(tail):
+        order = np.lexsort((length, head))
+        first = order[np.diff(head[order], prepend=-1) != 0]
+        parent[head[first]] = tail[first]
+        step[head[first]] = length[first]
+    return parent, step
+
+
+def _down_the_forest(labels: np.ndarray, parent: np.ndarray,
+                     step: np.ndarray) -> np.ndarray | None:
+    """Labels relaxed along every path of the forest at once; None if it has a cycle.
+
+    ``best(v) = min over ancestors a of label(a) + length(a -> v)``, by pointer jumping
+    (Wyllie's doubling, ``ceil(log2 depth)`` vectorised passes): after pass ``k`` the
+    minimum covers the ancestors fewer than ``2**(k+1)`` steps up. A cycle among the
+    parents (only a negative cycle makes one) never settles.
+    """
+    best, up, dist = labels, parent, step
+    for _ in range(len(labels).bit_length() + 1):
+        best = np.minimum(best, best[up] + dist)
+        if np.array_equal(up, up[up]):
+            return best
+        dist = dist + dist[up]
+        up = up[up]
+    return None
 
 
 def _shortest_parallel(n: int, tail: np.ndarray, head: np.ndarray,

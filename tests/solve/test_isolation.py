@@ -120,3 +120,48 @@ def test_a_long_chain_past_its_time_limit_is_503_and_the_worker_serves_on(tmp_pa
         (worker,) = before
         assert not os.path.exists(f"/proc/{worker}/task/{worker}/children") or not Path(
             f"/proc/{worker}/task/{worker}/children").read_text().split()
+
+
+# -- determinism -------------------------------------------------------------------------------
+
+
+def _transport(seed: int, sources: int, sinks: int, pairs: int) -> dict:
+    rng = np.random.default_rng(seed)
+    demand = rng.integers(1, 6, size=sinks)
+    supply = np.full(sources, int(1.3 * demand.sum() / sources) + 1)
+    tail = rng.integers(0, sources, size=pairs)
+    head = rng.integers(0, sinks, size=pairs)
+    # ties on purpose: few distinct costs, so many optima exist and the choice among them
+    # must still not depend on the run or the process
+    cost = rng.integers(1, 5, size=pairs)
+    return {"sources": [{"id": f"a{i}", "supply": int(q)} for i, q in enumerate(supply)],
+            "sinks": [{"id": f"t{j}", "demand": int(q)} for j, q in enumerate(demand)]
+            + [{"id": "late", "demand": 2, "penalty": 3}],
+            "arcs": [{"from": f"a{t}", "to": f"t{h}", "cost": int(c)}
+                     for t, h, c in zip(tail.tolist(), head.tolist(), cost.tolist(),
+                                        strict=True)]}
+
+
+@pytest.mark.parametrize("problem", [
+    _transport(1, 40, 400, 6000),
+    {**_transport(2, 40, 400, 6000), "nodes": [{"id": "idle-hub"}]},     # OR-Tools
+    {"sources": [{"id": f"w{i}"} for i in range(500)],
+     "sinks": [{"id": f"j{j}"} for j in range(500)],
+     "costs": np.random.default_rng(3).integers(0, 4, size=(500, 500)).tolist()},  # lapjv
+], ids=["network-simplex", "min-cost-flow", "lapjv"])
+def test_the_same_request_gives_the_same_bytes_forked_or_not(problem, monkeypatch):
+    import orjson
+
+    from service.settings import load_settings
+    from service.solve.pipeline import solve_body
+
+    settings = load_settings()
+    children = []
+    real = isolation._forked
+    monkeypatch.setattr(isolation, "_forked", lambda *a: children.append(1) or real(*a))
+    forked = [orjson.dumps(solve_body(problem, settings)) for _ in range(3)]
+    assert children                      # the engine did run in a child
+    monkeypatch.setattr(isolation, "IN_PROCESS_WORK", 10**30)
+    in_process = orjson.dumps(solve_body(problem, settings))
+    assert len(set(forked)) == 1
+    assert forked[0] == in_process

@@ -85,11 +85,32 @@ def test_a_negative_cycle_is_never_given_potentials():
         assert not found.ok
 
 
+def test_a_negative_path_broken_by_zero_arcs_is_settled_at_once():
+    # a chain whose 0-cost links break the run of negative arcs: bridged by them
+    n = 3001
+    tail, head = np.arange(1, n), np.arange(n - 1)
+    cost = -np.random.default_rng(10).integers(0, 3, size=n - 1)
+    found = exact_potentials(n, tail, head, cost, None, max_rounds=2)
+    assert found.ok and found.rounds == 1
+    assert np.array_equal(found.pi, -_networkx_distances(n, tail, head, cost))
+
+
+def test_a_long_negative_path_is_settled_at_once():
+    # 5,000 negative arcs in a row, listed in reverse: the first labels follow them back
+    n = 5001
+    tail, head = np.arange(n - 1)[::-1].copy(), np.arange(1, n)[::-1].copy()
+    cost = -np.random.default_rng(9).integers(1, 1000, size=n - 1)
+    found = exact_potentials(n, tail, head, cost, None, max_rounds=2)
+    assert found.ok and found.rounds == 1
+    assert np.array_equal(found.pi, -_networkx_distances(n, tail, head, cost))
+
+
 def test_a_round_cap_that_is_too_small_reports_it():
-    # a path of 50 negative arcs needs one round per arc from a zero candidate
+    # a path alternating arcs of -5 and +1: the shortest path from its start takes them
+    # all, and each +1 arc costs one more round
     n = 51
     tail, head = np.arange(n - 1), np.arange(1, n)
-    cost = -np.ones(n - 1, np.int64)
+    cost = np.where(np.arange(n - 1) % 2 == 0, -5, 1).astype(np.int64)
     assert not exact_potentials(n, tail, head, cost, None, max_rounds=5).ok
     found = exact_potentials(n, tail, head, cost, None, max_rounds=n + 1)
     assert found.ok and np.array_equal(found.pi, -_networkx_distances(n, tail, head, cost))
