@@ -80,23 +80,32 @@ def _can_fork() -> bool:
 def _forked(call: Callable[..., Arrays], args: tuple[Any, ...]) -> Arrays:
     """Run ``call`` in a child; the deadline's exception leaves with the child killed."""
     alarm = {signal.SIGALRM}
-    read_end, write_end = os.pipe()
-    _widen(write_end)
     # The alarm is held back while the child does not exist yet or is being reaped: raised
-    # in between, it would leave a child running that nothing waits for.
+    # in between, it would leave a child running that nothing waits for, or open pipes.
     mask = signal.pthread_sigmask(signal.SIG_BLOCK, alarm)
     try:
-        pid = os.fork()
-        if pid == 0:
-            _child(call, args, read_end, write_end)
-        os.close(write_end)
+        read_end, write_end = os.pipe()
         try:
-            signal.pthread_sigmask(signal.SIG_SETMASK, mask)
-            data = _read_all(read_end)
+            _widen(write_end)
+            try:
+                pid = os.fork()
+            except OSError:         # no memory or process slot for a child: do it here
+                signal.pthread_sigmask(signal.SIG_SETMASK, mask)
+                return call(*args)
+            if pid == 0:
+                _child(call, args, read_end, write_end)
+            os.close(write_end)
+            write_end = -1
+            try:
+                signal.pthread_sigmask(signal.SIG_SETMASK, mask)
+                data = _read_all(read_end)
+            finally:
+                signal.pthread_sigmask(signal.SIG_BLOCK, alarm)
+                _reap(pid)
         finally:
-            signal.pthread_sigmask(signal.SIG_BLOCK, alarm)
-            _reap(pid)
             os.close(read_end)
+            if write_end >= 0:
+                os.close(write_end)
     finally:
         # a deadline that passed during the reaping raises here, once the child is gone
         signal.pthread_sigmask(signal.SIG_SETMASK, mask)

@@ -26,7 +26,7 @@ def solve(net: Network) -> Run | None:
     Notes
     -----
     scipy implements LAPJVsp (Jonker & Volgenant 1987, sparse variant): one shortest
-    augmenting path per row, at most O(n (n + arcs)) steps each. It drops explicit zero
+    augmenting path per row, each O(n^2 + arcs) steps at most. It drops explicit zero
     weights, so every weight is shifted to at least 1; a full matching of the smaller side
     uses exactly ``min(n, m)`` arcs, so the shift changes every candidate's cost by the
     same amount and not the optimum.
@@ -43,7 +43,7 @@ def solve(net: Network) -> Run | None:
     indptr = np.searchsorted(rows[order], np.arange(n + 1))
     side = min(n, m)
     out = isolation.run(_call, weights, cols[order], indptr, n, m,
-                        work=side * (side + len(arcs)) * side)
+                        work=side * (side**2 + len(arcs)))
     if "rows" not in out:
         return None
     r, c = out["rows"], out["cols"]
