@@ -58,6 +58,8 @@ __all__ = ["Potentials", "exact_potentials", "forest_candidate"]
 _EXACT = 2**53
 #: Candidates beyond this magnitude are replaced by 0, keeping int64 sums far from overflow.
 _CANDIDATE_MAX = 2**52
+#: Sums along the forests saturate here: two of them still fit in int64.
+_FLOOR = -(2**62)
 
 
 @dataclass(frozen=True)
@@ -155,7 +157,7 @@ def _rounds(n: int, tail: np.ndarray, head: np.ndarray, r: np.ndarray,
         through = labels[tn] + rn
         better = through < labels[hn]
         if not better.any() and np.array_equal(down, closed):
-            return labels, done
+            return (labels, done) if -int(labels.min()) < _EXACT else (None, done)
         np.minimum.at(labels, hn[better], through[better])
     return None, cap
 
@@ -182,14 +184,17 @@ def _down_the_forest(labels: np.ndarray, parent: np.ndarray,
     ``best(v) = min over ancestors a of label(a) + length(a -> v)``, by pointer jumping
     (Wyllie's doubling, ``ceil(log2 depth)`` vectorised passes): after pass ``k`` the
     minimum covers the ancestors fewer than ``2**(k+1)`` steps up. A cycle among the
-    parents (only a negative cycle makes one) never settles.
+    parents (only a negative cycle makes one) never settles. Sums saturate at
+    ``-2**62``: that keeps int64 from wrapping, and a label raised to it is still no
+    lower than the true distance, which is all the rounds need (such labels then stop
+    them at the 2**53 bound).
     """
     best, up, dist = labels, parent, step
     for _ in range(len(labels).bit_length() + 1):
-        best = np.minimum(best, best[up] + dist)
+        best = np.minimum(best, np.maximum(best[up] + dist, _FLOOR))
         if np.array_equal(up, up[up]):
             return best
-        dist = dist + dist[up]
+        dist = np.maximum(dist + dist[up], _FLOOR)
         up = up[up]
     return None
 

@@ -153,3 +153,13 @@ def test_a_long_free_path_needs_no_round_at_all():
     # common practice, no source: on a path both directions are tight, so the potential
     # differences along it are exactly the costs
     assert np.array_equal(pi[tail] - pi[head], cost)
+
+
+def test_distances_beyond_exact_float64_are_refused_not_wrapped():
+    # 3,000 arcs of -2**50 in a row: the distances reach -3000 * 2**50, far past 2**53,
+    # where float64 Dijkstra is no longer exact: no potentials are claimed
+    n = 3001
+    tail, head = np.arange(n - 1), np.arange(1, n)
+    cost = np.full(n - 1, -(2**50), np.int64)
+    found = exact_potentials(n, tail, head, cost, None, max_rounds=n + 1)
+    assert not found.ok
