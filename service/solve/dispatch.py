@@ -15,13 +15,16 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
 
+from service.errors import OutOfRange
 from service.network.model import Arcs, Flow, Network
+from service.solve import isolation
 from service.solve.engines import (
     Run,
     dense_assignment,
@@ -127,7 +130,7 @@ def _two_stages(net: Network, engine: Callable[[Network, int], Run | None | bool
     if met is not None:
         assert isinstance(met, Run)
         return Shortfall.none(net), met
-    shortfall = least_shortfall(net)
+    shortfall = _stage_one(net)
     reject_if_short(net, shortfall)
     run = engine(net, shortfall.amount)
     if run is False:
@@ -136,3 +139,23 @@ def _two_stages(net: Network, engine: Callable[[Network, int], Run | None | bool
         raise RuntimeError("no flow within the least hard shortfall stage 1 found")
     assert isinstance(run, Run)
     return shortfall, run
+
+
+def _stage_one(net: Network) -> Shortfall:
+    """:func:`least_shortfall`, through the runner: OR-Tools' push-relabel maximum flow is
+    O(n^2 sqrt(m)) (Cheriyan & Maheshwari 1989) and, like any compiled call, must not
+    outlast the time limit."""
+    n = net.n_user + 2
+    out = isolation.run(_least_shortfall_arrays, net,
+                        work=n * n * max(1, math.isqrt(len(net.arcs) + n)))
+    if "out_of_range" in out:
+        raise OutOfRange(str(out["out_of_range"].item()))
+    return Shortfall(int(out["amount"]), out["sink_side"].astype(bool))
+
+
+def _least_shortfall_arrays(net: Network) -> isolation.Arrays:
+    try:
+        found = least_shortfall(net)
+    except OutOfRange as e:
+        return {"out_of_range": np.array(e.detail)}
+    return {"amount": np.array(found.amount), "sink_side": found.sink_side}

@@ -142,13 +142,20 @@ def _transport(seed: int, sources: int, sinks: int, pairs: int) -> dict:
                                         strict=True)]}
 
 
+def _short(problem: dict) -> dict:
+    """The same problem with every source's supply cut to 1: hard demand goes unmet, so
+    stage 1 (the maximum flow and its cut) runs too."""
+    return {**problem, "sources": [{**s, "supply": 1} for s in problem["sources"]]}
+
+
 @pytest.mark.parametrize("problem", [
     _transport(1, 40, 400, 6000),
+    _short(_transport(4, 100, 1200, 20_000)),
     {**_transport(2, 40, 400, 6000), "nodes": [{"id": "idle-hub"}]},     # OR-Tools
     {"sources": [{"id": f"w{i}"} for i in range(500)],
      "sinks": [{"id": f"j{j}"} for j in range(500)],
      "costs": np.random.default_rng(3).integers(0, 4, size=(500, 500)).tolist()},  # lapjv
-], ids=["network-simplex", "min-cost-flow", "lapjv"])
+], ids=["network-simplex", "stage-one", "min-cost-flow", "lapjv"])
 def test_the_same_request_gives_the_same_bytes_forked_or_not(problem, monkeypatch):
     import orjson
 
