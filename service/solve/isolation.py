@@ -136,7 +136,10 @@ def _child(call: Callable[..., Arrays], args: tuple[Any, ...], read_end: int,
 
 
 def _die_with_parent() -> None:
-    """Ask Linux to SIGKILL this child when its parent dies; no-op elsewhere."""
+    """End with the parent: SIGKILL when it dies (Linux), and the default action for the
+    signals a worker handles itself (a child has nothing to finish or clean up)."""
+    for name in ("SIGTERM", "SIGINT", "SIGQUIT", "SIGHUP", "SIGUSR1", "SIGUSR2"):
+        signal.signal(getattr(signal, name), signal.SIG_DFL)
     try:
         libc = ctypes.CDLL(None, use_errno=True)
         libc.prctl(_PR_SET_PDEATHSIG, signal.SIGKILL)
