@@ -15,7 +15,7 @@ the request, and the ``finally`` kills the child with SIGKILL and reaps it. So a
 child is the same 503 ``time-limit`` answer as any other late request, the worker is
 free at once, and all the engine's memory goes with the child.
 
-Small calls run in the process (:data:`IN_PROCESS_WORK`): a fork costs 5-15 ms here,
+Small calls run in the process (:data:`IN_PROCESS_WORK`): a fork costs 5-50 ms here,
 more than a small problem's whole solve. The child is asked to die with its parent
 (Linux ``PR_SET_PDEATHSIG``), so a worker killed by gunicorn's timeout or by ``kill -9``
 takes its engine run with it.

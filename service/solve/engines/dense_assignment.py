@@ -67,11 +67,15 @@ def _square(net: Network) -> Run | None | Literal[False]:
     assert dense is not None
     n = dense.shape[0]
     allowed = dense != FORBIDDEN
-    low, high = int(dense[allowed].min()), int(dense[allowed].max())
-    surcharge = n * (high - low) + 1 if not allowed.all() else 0
+    everywhere = bool(allowed.all())
+    # reductions with ``where`` read the matrix in place: no copy of its allowed cells
+    low = int(dense.min(where=allowed, initial=FORBIDDEN))
+    high = int(dense.max(where=allowed, initial=-FORBIDDEN))
+    surcharge = 0 if everywhere else n * (high - low) + 1
     if n * (high - low + surcharge) >= _FLOAT_EXACT:
         return False
-    out = isolation.run(_lapjv, dense, low, high + surcharge, work=n**3)
+    out = isolation.run(_lapjv, dense, low, None if everywhere else high + surcharge,
+                        work=n**3)
     col = out["col"].astype(np.int64)
     cells = np.arange(n, dtype=np.int64) * n + col
     if not allowed.reshape(-1)[cells].all():
@@ -85,10 +89,12 @@ def _square(net: Network) -> Run | None | Literal[False]:
     return Run(Flow(arc=cells, amount=np.ones(n, np.int64)), duals)
 
 
-def _lapjv(dense: np.ndarray, low: int, forbidden: int) -> isolation.Arrays:
+def _lapjv(dense: np.ndarray, low: int, forbidden: int | None) -> isolation.Arrays:
     """The bare lapjv call on costs shifted to start at 0 (built here, in the child)."""
-    matrix = (dense - low).astype(np.float64)
-    matrix[dense == FORBIDDEN] = float(forbidden - low)
+    matrix = dense.astype(np.float64)
+    matrix -= low                       # exact: integers of magnitude below 2**53
+    if forbidden is not None:
+        matrix[dense == FORBIDDEN] = float(forbidden - low)
     col, _, (_, u, v) = lapjv.lapjv(matrix, force_doubles=True)
     return {"col": col, "u": u, "v": v}
 
