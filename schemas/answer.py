@@ -10,7 +10,8 @@ from schemas.problem import ProblemSchema
 from schemas.tables import RecordList
 
 SHAPES = ("assignment", "transportation", "transshipment")
-SOLVERS = ("linear_sum_assignment", "min_weight_full_bipartite_matching", "min_cost_flow")
+SOLVERS = ("lapjv", "linear_sum_assignment", "min_weight_full_bipartite_matching",
+           "network_simplex", "min_cost_flow")
 
 
 class AllocationRowSchema(Schema):

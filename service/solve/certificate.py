@@ -1,10 +1,19 @@
-"""The optimality certificate: potentials from the residual graph, and the dual objective.
+"""The optimality certificate: potentials for the residual graph, and the dual objective.
 
-Given any flow, the potentials are minus the shortest distances in its residual graph
-from a virtual root joined to every node (Ahuja, Magnanti & Orlin, *Network Flows*, 1993,
-§9.3-9.4). The flow is optimal exactly when that graph has no negative cycle; then every
-residual arc has a non-negative reduced cost ``c - pi(i) + pi(j)``, which is complementary
-slackness, and the dual objective equals the flow's cost.
+Potentials prove a flow optimal when every arc of its residual graph has a non-negative
+reduced cost ``c - pi(i) + pi(j)``, which is complementary slackness, and then the dual
+objective equals the flow's cost (Ahuja, Magnanti & Orlin, *Network Flows*, 1993,
+§9.3-9.4). They are found, in this order:
+
+1. from the engine's duals, or, for a min-cost-flow engine's flow, from the forest of its
+   free arcs, made exact by :func:`service.solve.potentials.exact_potentials` within
+   :data:`REPAIR_ROUNDS` Dijkstra rounds (one linear pass when the duals are exact);
+2. otherwise from scratch: minus the shortest distances in the residual graph from a
+   virtual root joined to every node (:func:`service.solve.paths.bellman_ford`), which
+   exist exactly when the flow is optimal.
+
+Every step is numpy or one compiled call of O(m log m) at most, so the request's time
+limit, which acts between them, bounds the whole.
 """
 
 from __future__ import annotations
@@ -18,10 +27,19 @@ from service.network.model import Network
 from service.solve.dispatch import Solution
 from service.solve.extended import Extended, extend, virtual_flows
 from service.solve.paths import DenseBlock, bellman_ford
+from service.solve.potentials import exact_potentials, forest_candidate
 
 __all__ = ["Certificate", "certify", "exact_dot"]
 
 _INT64_SAFE = 2.0**62
+
+#: Dijkstra rounds allowed to repair a candidate before computing potentials from
+#: scratch. Measured (README "Performance"): engine duals need 0; the free-arc forest of
+#: OR-Tools' flows 1-6 on chains, layered and transshipment networks, 18 on grids of 100^2
+#: to 300^2. Each round is O(m + n log n), so a candidate that fails costs 32 of them.
+REPAIR_ROUNDS = 32
+#: Rows of a dense block checked at once: bounds the temporary to this x columns.
+_BLOCK_ROWS = 256
 
 
 def exact_dot(a: np.ndarray, b: np.ndarray) -> int:
@@ -47,6 +65,7 @@ class Certificate:
     potential: np.ndarray     # per node of the extended network
     primal: int               # min-form cost of the flow
     dual: int                 # dual objective of the potentials
+    method: str = ""          # how the potentials were found (for the benchmark and logs)
 
 
 def certify(net: Network, solution: Solution) -> Certificate:
@@ -90,11 +109,16 @@ def certify(net: Network, solution: Solution) -> Certificate:
         room = ~arcs.bounded | (x < arcs.capacity)
         parts.append((arcs.tail[room], arcs.head[room], arcs.cost[room]))
     tail, head, cost = (np.concatenate([p[k] for p in parts]) for k in range(3))
-    paths = bellman_ford(ext.n_nodes, tail, head, cost, dense=block, smallest_first=True)
-    if not paths.converged:
-        raise CertificateFailure("the residual graph has a negative cycle: the engine's flow "
-                                 "is not optimal")
-    pi = -paths.dist
+    found = _from_candidate(net, ext, solution, xv, (tail, head, cost), block)
+    if found is not None:
+        pi, method = found
+    else:
+        method = "bellman-ford"
+        paths = bellman_ford(ext.n_nodes, tail, head, cost, dense=block, smallest_first=True)
+        if not paths.converged:
+            raise CertificateFailure("the residual graph has a negative cycle: the engine's "
+                                     "flow is not optimal")
+        pi = -paths.dist
     primal = exact_dot(used_cost, flow.amount) + exact_dot(ext.cost, xv)
     penalty = exact_dot(ext.capacity, np.maximum(0, -(ext.cost - pi[ext.tail] + pi[ext.head])))
     if net.arc_list is not None:
@@ -105,4 +129,49 @@ def certify(net: Network, solution: Solution) -> Certificate:
     dual = net.total_demand * int(pi[ext.S] - pi[ext.T]) - penalty
     if dual != primal:
         raise CertificateFailure(f"dual objective {dual} differs from the cost {primal}")
-    return Certificate(ext=ext, virtual_flow=xv, potential=pi, primal=primal, dual=dual)
+    return Certificate(ext=ext, virtual_flow=xv, potential=pi, primal=primal, dual=dual,
+                       method=method)
+
+
+def _from_candidate(net: Network, ext: Extended, solution: Solution, xv: np.ndarray,
+                    residual: tuple[np.ndarray, np.ndarray, np.ndarray],
+                    block: DenseBlock | None) -> tuple[np.ndarray, str] | None:
+    """Exact potentials from the engine's duals or the free-arc forest, and which; None
+    when there is no candidate or it could not be repaired within the rounds allowed."""
+    candidate, source = solution.duals, "duals"
+    if candidate is None and solution.free_arcs and block is None:
+        candidate, source = _forest(net, ext, solution, xv), "free-arc forest"
+    if candidate is None:
+        return None
+    found = exact_potentials(ext.n_nodes, *residual, candidate, max_rounds=REPAIR_ROUNDS)
+    if not found.ok or (block is not None and not _block_holds(block, found.pi)):
+        return None
+    return found.pi, f"{source} + {found.rounds} rounds"
+
+
+def _forest(net: Network, ext: Extended, solution: Solution, xv: np.ndarray) -> np.ndarray:
+    """The free-arc forest candidate over user and virtual arcs (arc lists only)."""
+    arcs = net.arcs
+    x = np.zeros(len(arcs), np.int64)
+    x[solution.flow.arc] = solution.flow.amount
+    user_free = (x > 0) & (~arcs.bounded | (x < arcs.capacity))
+    return forest_candidate(ext.n_nodes, np.concatenate([arcs.tail, ext.tail]),
+                            np.concatenate([arcs.head, ext.head]),
+                            np.concatenate([arcs.cost, ext.cost]),
+                            np.concatenate([user_free, (xv > 0) & (xv < ext.capacity)]))
+
+
+def _block_holds(block: DenseBlock, pi: np.ndarray) -> bool:
+    """Every cell of the block has a non-negative reduced cost under ``pi`` (exact int64).
+
+    Cells cost at most FORBIDDEN = 2**62 and ``|pi| < 2**54``, so no sum leaves int64; a
+    forbidden cell's reduced cost is then always positive, as a missing arc needs.
+    """
+    n_rows, n_cols = block.cost.shape
+    cols = pi[block.col_start:block.col_start + n_cols]
+    for start in range(0, n_rows, _BLOCK_ROWS):
+        stop = min(n_rows, start + _BLOCK_ROWS)
+        rows = pi[block.row_start + start:block.row_start + stop]
+        if ((block.cost[start:stop] - rows[:, None]) + cols[None, :] < 0).any():
+            return False
+    return True

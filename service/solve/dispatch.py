@@ -1,22 +1,37 @@
 """Pick an engine by the shape of the problem, run the two stages, return the flows.
 
 * assignment (every supply and demand 1, no nodes, source->sink arcs, at most one arc per
-  pair, no capacity but 1, no penalty): linear_sum_assignment on a dense matrix, or
-  min_weight_full_bipartite_matching when sparse (arcs, or a matrix more than half null);
-  when no matching covers the smaller side, min-cost flow instead.
+  pair, no capacity but 1, no penalty): lapjv on a square dense matrix, scipy's
+  linear_sum_assignment on a rectangular one, min_weight_full_bipartite_matching when
+  sparse (arcs, or a matrix more than half null); when no matching covers the smaller
+  side, min-cost flow instead.
 * transportation (source->sink arcs only) and transshipment (anything else): stage 2
-  (min-cost flow) with every hard demand to be met; when that has no flow, stage 1
+  (a min-cost flow) with every hard demand to be met; when that has no flow, stage 1
   (maximum flow into the hard sinks) for the least hard shortfall, then stage 2 again.
+  Stage 2 is POT's network simplex for a transportation problem whose arcs have no
+  binding capacity and whose costs float64 holds exactly, OR-Tools' cost scaling
+  otherwise (README "How a problem is solved" has the measurements behind the choice).
 """
 
 from __future__ import annotations
 
+import math
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Literal
 
 import numpy as np
 
+from service.errors import OutOfRange
 from service.network.model import Arcs, Flow, Network
-from service.solve.engines import dense_assignment, min_cost_flow, sparse_assignment
+from service.solve import isolation
+from service.solve.engines import (
+    Run,
+    dense_assignment,
+    min_cost_flow,
+    sparse_assignment,
+    transportation,
+)
 from service.solve.feasibility import (
     Shortfall,
     check_bounded,
@@ -32,12 +47,20 @@ DENSE_SHARE = 0.5
 
 @dataclass(frozen=True)
 class Solution:
-    """Flows on the user arcs, with the stage-1 shortfall and who produced them."""
+    """Flows on the user arcs, with the stage-1 shortfall and who produced them.
+
+    ``duals``: the engine's candidate potentials on the extended network, when it has
+    them; ``free_arcs``: without duals, whether the certificate should start from the
+    free-arc forest of the flow (worth it for a min-cost-flow engine's flow, whose free
+    arcs are many; not for a matching, whose arcs all sit at a bound).
+    """
 
     shape: str
     solver: str
     flow: Flow
     shortfall: Shortfall
+    duals: np.ndarray | None = None
+    free_arcs: bool = False
 
 
 def shape_of(net: Network) -> str:
@@ -67,22 +90,72 @@ def solve(net: Network) -> Solution:
     check_bounded(net)
     shape = shape_of(net)
     if shape == "assignment":
-        cells = net.n_sources * net.n_sinks
-        dense = net.from_matrix and net.n_arcs >= DENSE_SHARE * cells
-        engine = dense_assignment if dense else sparse_assignment
-        flow = engine.solve(net)
-        if flow is not None:
-            shortfall = shortfall_of_matching(net, len(flow.arc))
+        matched = _assignment(net)
+        if matched is not None:
+            solver, run = matched
+            shortfall = shortfall_of_matching(net, len(run.flow.arc))
             reject_if_short(net, shortfall)
-            return Solution(shape, engine.NAME, flow, shortfall)
+            return Solution(shape, solver, run.flow, shortfall, run.duals)
+    if shape == "transportation" and transportation.suits(net):
+        solved = _two_stages(net, transportation.solve)
+        if solved is not False:
+            shortfall, run = solved
+            return Solution(shape, transportation.NAME, run.flow, shortfall, run.duals)
+    solved = _two_stages(net, min_cost_flow.solve)
+    assert solved is not False
+    shortfall, run = solved
+    return Solution(shape, min_cost_flow.NAME, run.flow, shortfall, free_arcs=True)
+
+
+def _assignment(net: Network) -> tuple[str, Run] | None:
+    """The assignment engines' matching, or None when none covers the smaller side."""
+    cells = net.n_sources * net.n_sinks
+    if net.from_matrix and net.n_arcs >= DENSE_SHARE * cells:
+        return dense_assignment.solve(net)
+    run = sparse_assignment.solve(net)
+    return None if run is None else (sparse_assignment.NAME, run)
+
+
+def _two_stages(net: Network, engine: Callable[[Network, int], Run | None | bool]
+                ) -> tuple[Shortfall, Run] | Literal[False]:
+    """Stage 2 meeting every hard demand, else stage 1 and stage 2 within its shortfall.
+
+    False when the engine declines the problem (see :func:`transportation.solve`).
+    """
     # Stage 2 with no hard shortfall allowed first: when it finds a flow, every hard demand
     # is met and stage 1 has nothing to prove (saves a maximum flow in the common case).
-    met = min_cost_flow.solve(net, 0)
+    met = engine(net, 0)
+    if met is False:
+        return False
     if met is not None:
-        return Solution(shape, min_cost_flow.NAME, met, Shortfall.none(net))
-    shortfall = least_shortfall(net)
+        assert isinstance(met, Run)
+        return Shortfall.none(net), met
+    shortfall = _stage_one(net)
     reject_if_short(net, shortfall)
-    flow = min_cost_flow.solve(net, shortfall.amount)
-    if flow is None:
+    run = engine(net, shortfall.amount)
+    if run is False:
+        return False
+    if run is None:
         raise RuntimeError("no flow within the least hard shortfall stage 1 found")
-    return Solution(shape, min_cost_flow.NAME, flow, shortfall)
+    assert isinstance(run, Run)
+    return shortfall, run
+
+
+def _stage_one(net: Network) -> Shortfall:
+    """:func:`least_shortfall`, through the runner: OR-Tools' push-relabel maximum flow is
+    O(n^2 sqrt(m)) (Cheriyan & Maheshwari 1989) and, like any compiled call, must not
+    outlast the time limit."""
+    n = net.n_user + 2
+    out = isolation.run(_least_shortfall_arrays, net,
+                        work=n * n * max(1, math.isqrt(len(net.arcs) + n)))
+    if "out_of_range" in out:
+        raise OutOfRange(str(out["out_of_range"].item()))
+    return Shortfall(int(out["amount"]), out["sink_side"].astype(bool))
+
+
+def _least_shortfall_arrays(net: Network) -> isolation.Arrays:
+    try:
+        found = least_shortfall(net)
+    except OutOfRange as e:
+        return {"out_of_range": np.array(e.detail)}
+    return {"amount": np.array(found.amount), "sink_side": found.sink_side}

@@ -398,7 +398,7 @@ def test_format_table_reads_like_a_table_and_carries_the_verdict(capsys, tmp_pat
     code, out, err = _run(capsys, "solve", _csv(tmp_path), "--local", "--format", "table")
     assert code == 0, err
     lines = out.splitlines()
-    assert lines[0] == "optimal allocation (transportation, solver min_cost_flow)"
+    assert lines[0] == "optimal allocation (transportation, solver network_simplex)"
     header = next(line for line in lines if line.strip().startswith("from"))
     assert header.split() == ["from", "to", "flow", "cost"]
     row = next(line for line in lines if "ticket-2" in line)

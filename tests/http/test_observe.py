@@ -227,7 +227,7 @@ def test_the_app_alone_adds_no_log_handler():
 
 
 def test_a_solve_is_counted_by_shape_and_solver(client):
-    labels = {"shape": "transportation", "solver": "min_cost_flow"}
+    labels = {"shape": "transportation", "solver": "network_simplex"}
 
     def read() -> tuple[float, ...]:
         return (_sample("certimatch_solves_total", **labels),
@@ -324,7 +324,7 @@ def test_metrics_endpoint_speaks_the_exposition_format(client):
                 "certimatch_verifications": "counter"}
     assert {name: families[name].type for name in expected} == expected
     solved = [s for s in families["certimatch_solves"].samples
-              if s.labels == {"shape": "transportation", "solver": "min_cost_flow"}]
+              if s.labels == {"shape": "transportation", "solver": "network_simplex"}]
     assert solved and solved[0].value >= 1
 
 

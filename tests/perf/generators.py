@@ -181,3 +181,105 @@ def transshipment(stores: int = 4500, warehouses: int = 40, depots: int = 400,
             "sinks": [{"id": s, "demand": q}
                       for s, q in zip(s_ids, demand.tolist(), strict=True)],
             "arcs": arcs}
+
+
+# --------------------------------------------------------------------- worst-case family W
+# Shapes chosen to be hard for the engines and for the potentials (issue "exact
+# verification", item 6): a long path (depth = size), deep layers, a grid, many parallel
+# arcs. Nodes are numbered sources, then transshipment nodes, then sinks, as in a request.
+
+
+def _network_request(n_src: int, n_mid: int, n_snk: int, supply: np.ndarray,
+                     demand: np.ndarray, tail: np.ndarray, head: np.ndarray,
+                     cost: np.ndarray, capacity: np.ndarray | None,
+                     penalty: np.ndarray | None = None) -> Request:
+    """A request from node-index arrays; capacity 0 means an unbounded arc."""
+    ids = _ids("s", n_src) + _ids("n", n_mid) + _ids("t", n_snk)
+    cap = [None] * len(tail) if capacity is None else capacity.tolist()
+    arcs = [{"from": ids[a], "to": ids[b], "cost": c} if not u else
+            {"from": ids[a], "to": ids[b], "cost": c, "capacity": u}
+            for a, b, c, u in zip(tail.tolist(), head.tolist(), cost.tolist(), cap,
+                                  strict=True)]
+    sinks = [{"id": ids[n_src + n_mid + j], "demand": q} for j, q in enumerate(demand.tolist())]
+    if penalty is not None:
+        for s, p in zip(sinks, penalty.tolist(), strict=True):
+            s["penalty"] = p
+    return {"sources": [{"id": ids[i], "supply": q} for i, q in enumerate(supply.tolist())],
+            "nodes": [{"id": i} for i in ids[n_src:n_src + n_mid]],
+            "sinks": sinks, "arcs": arcs}
+
+
+def chain(n: int, variant: str = "forward", seed: int = 11) -> Request:
+    """One source -> ``n - 2`` nodes in a path -> one sink, 7 units, costs 0..1000.
+
+    Every 10th link has a parallel bypass of capacity 3 and cost + 5000. ``forward``: nodes
+    numbered and arcs listed along the path, links unbounded; ``reversed``: the path runs
+    through the nodes in reverse order and the arcs are listed from the sink end;
+    ``saturated``: forward, but every link has capacity 7 = the flow, so no arc is strictly
+    between its bounds (the free-arc forest of the potentials finds nothing).
+    """
+    rng = np.random.default_rng(seed)
+    mids = n - 2
+    order = np.arange(mids)[::-1] if variant == "reversed" else np.arange(mids)
+    path = np.concatenate([[0], 1 + order, [n - 1]])
+    tail, head = path[:-1], path[1:]
+    cost = rng.integers(0, 1000, size=n - 1, endpoint=True)
+    cap = np.full(n - 1, 7 if variant == "saturated" else 0, np.int64)
+    by = np.arange(0, n - 1, 10)
+    tail, head = np.concatenate([tail, tail[by]]), np.concatenate([head, head[by]])
+    cost = np.concatenate([cost, cost[by] + 5000])
+    cap = np.concatenate([cap, np.full(len(by), 3)])
+    if variant == "reversed":
+        tail, head, cost, cap = tail[::-1], head[::-1], cost[::-1], cap[::-1]
+    return _network_request(1, mids, 1, np.array([7]), np.array([7]), tail, head, cost, cap)
+
+
+def layered(layers: int, width: int = 100, degree: int = 5, seed: int = 12) -> Request:
+    """``layers`` layers of ``width`` nodes: the first sources, the last soft sinks
+    (penalty 200,000, above any path); each node has ``degree`` random arcs into the next
+    layer, capacity 1..50, cost 0..1000."""
+    rng = np.random.default_rng(seed)
+    n = layers * width
+    u = np.repeat(np.arange(n - width), degree)
+    v = (u // width + 1) * width + rng.integers(0, width, size=len(u))
+    keys = np.unique(u * n + v)
+    tail, head = keys // n, keys % n
+    cost = rng.integers(0, 1000, size=len(tail), endpoint=True)
+    cap = rng.integers(1, 50, size=len(tail), endpoint=True)
+    supply = rng.integers(50, 150, size=width, endpoint=True)
+    demand = rng.integers(20, 100, size=width, endpoint=True)
+    return _network_request(width, n - 2 * width, width, supply, demand, tail, head, cost,
+                            cap, np.full(width, 200_000))
+
+
+def grid(rows: int, cols: int, seed: int = 13) -> Request:
+    """A ``rows x cols`` grid with arcs to the 4 neighbours (capacity 5..40, cost 1..100);
+    the first row sources, the last row soft sinks (penalty 10^6)."""
+    rng = np.random.default_rng(seed)
+    idx = np.arange(rows * cols).reshape(rows, cols)
+    pairs = [(idx[:, :-1], idx[:, 1:]), (idx[:, 1:], idx[:, :-1]),
+             (idx[:-1, :], idx[1:, :]), (idx[1:, :], idx[:-1, :])]
+    tail = np.concatenate([a.ravel() for a, _ in pairs])
+    head = np.concatenate([b.ravel() for _, b in pairs])
+    cost = rng.integers(1, 100, size=len(tail), endpoint=True)
+    cap = rng.integers(5, 40, size=len(tail), endpoint=True)
+    supply = rng.integers(20, 60, size=cols, endpoint=True)
+    demand = rng.integers(10, 50, size=cols, endpoint=True)
+    return _network_request(cols, (rows - 2) * cols, cols, supply, demand, tail, head, cost,
+                            cap, np.full(cols, 1_000_000))
+
+
+def parallel(sources: int, sinks: int, tiers: int = 20, seed: int = 14) -> Request:
+    """Every source-sink pair joined by ``tiers`` parallel arcs of capacity 1..10 and rising
+    cost (convex tiers), listed in random order; hard sinks, supply 1.3x the demand."""
+    rng = np.random.default_rng(seed)
+    s = np.repeat(np.arange(sources), sinks * tiers)
+    t = np.tile(np.repeat(np.arange(sinks), tiers), sources) + sources
+    base = rng.integers(0, 500, size=(sources * sinks, 1))
+    cost = (base + np.cumsum(rng.integers(1, 50, size=(sources * sinks, tiers)), axis=1)).ravel()
+    cap = rng.integers(1, 10, size=len(s), endpoint=True)
+    demand = rng.integers(50, 300, size=sinks, endpoint=True)
+    supply = np.full(sources, int(np.ceil(1.3 * demand.sum() / sources)))
+    perm = rng.permutation(len(s))
+    return _network_request(sources, 0, sinks, supply, demand, s[perm], t[perm], cost[perm],
+                            cap[perm])

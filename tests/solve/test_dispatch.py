@@ -24,8 +24,32 @@ def shape_and_solver(problem: dict[str, Any]) -> tuple[str, str]:
     return solution.shape, solution.solver
 
 
-def test_dense_unit_matrix_is_assignment_on_the_dense_engine():
+def test_square_dense_unit_matrix_is_assignment_on_lapjv():
     assert shape_and_solver(matrix([[4, 1, 3], [2, 0, 5], [3, 2, 2]])) == (
+        "assignment", "lapjv")
+
+
+def test_square_matrix_with_forbidden_cells_stays_on_lapjv():
+    # 6 of 9 cells allowed (dense); the surcharge on forbidden cells keeps them unused.
+    problem = matrix([[4, None, 3], [2, 0, None], [None, 2, 2]])
+    assert shape_and_solver(problem) == ("assignment", "lapjv")
+    flow = dispatch.solve(net_of(problem)).flow
+    # common practice, no source: the two perfect matchings avoiding the forbidden cells
+    # cost 4 + 0 + 2 = 6 and 3 + 2 + 2 = 7
+    assert sorted(flow.arc.tolist()) == [0, 4, 8]
+
+
+def test_square_matrix_whose_allowed_cells_admit_no_perfect_matching():
+    # Two sources reach only the first sink: lapjv's best uses a forbidden cell, so the
+    # dispatcher moves on, as it does for scipy's "infeasible".
+    problem = matrix([[1, None, 2], [1, None, None], [1, None, None]])
+    assert shape_and_solver(problem)[1] == "min_cost_flow"
+
+
+def test_square_matrix_with_costs_beyond_exact_float64_goes_to_scipy():
+    # 6 decimals make these 2 x 10**15 apart on the cost grid: 2 x that is above 2**50
+    big = 999_999_999.5
+    assert shape_and_solver(matrix([[0.5, big], [-big, 0]])) == (
         "assignment", "linear_sum_assignment")
 
 
@@ -77,9 +101,22 @@ def test_shape_classification(problem, shape):
     assert shape_of(net_of(problem)) == shape
 
 
-def test_non_assignment_shapes_use_min_cost_flow():
+def test_transportation_uses_the_network_simplex():
     problem = {**matrix([[1, 2]]), "sources": [{"id": "s0", "supply": 2}]}
+    assert shape_and_solver(problem) == ("transportation", "network_simplex")
+
+
+def test_transportation_with_a_binding_capacity_uses_min_cost_flow():
+    problem = {"sources": [{"id": "s0", "supply": 2}], "sinks": [{"id": "t0", "demand": 2}],
+               "arcs": [{"from": "s0", "to": "t0", "cost": 1, "capacity": 1},
+                        {"from": "s0", "to": "t0", "cost": 3}]}
     assert shape_and_solver(problem) == ("transportation", "min_cost_flow")
+
+
+def test_transshipment_uses_min_cost_flow():
+    problem = {"sources": unit("s", 1), "nodes": [{"id": "h"}], "sinks": unit("t", 1),
+               "arcs": [{"from": "s0", "to": "h", "cost": 1}, {"from": "h", "to": "t0", "cost": 1}]}
+    assert shape_and_solver(problem) == ("transshipment", "min_cost_flow")
 
 
 # -- stage 1: unbounded cycles and the least hard shortfall ------------------------------------

@@ -330,11 +330,14 @@ def test_every_engine_finds_the_one_assignment_optimum(client, family):
         problem = ref.instance(family, seed)
         if any(c is None for row in problem["costs"] for c in row):
             continue
+        square = len(problem["sources"]) == len(problem["sinks"])
         posed = {
-            "linear_sum_assignment": problem,
+            "lapjv" if square else "linear_sum_assignment": problem,
             "min_weight_full_bipartite_matching": _as_arcs(problem),
             # Capacity 2 changes nothing (supply is 1) but leaves the assignment shape.
-            "min_cost_flow": _as_arcs(problem, capacity=2),
+            "network_simplex": _as_arcs(problem, capacity=2),
+            # A node with no arcs changes nothing but makes it a transshipment problem.
+            "min_cost_flow": {**_as_arcs(problem), "nodes": [{"id": "idle-hub"}]},
         }
         objectives = {}
         for solver, variant in posed.items():

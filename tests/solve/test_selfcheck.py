@@ -10,7 +10,7 @@ import pytest
 from service.app import create_app
 from service.network.model import Flow
 from service.solve import certificate, pipeline
-from service.solve.engines import dense_assignment
+from service.solve.engines import Run, dense_assignment
 
 # scipy.optimize.linear_sum_assignment docstring example: the optimum is 5.
 PROBLEM = {
@@ -33,10 +33,14 @@ def _assert_failure_document(response) -> None:
     assert "allocation" not in body and "certificate" not in body
 
 
-def test_suboptimal_engine_flow_is_refused(client, monkeypatch, caplog):
+@pytest.mark.parametrize("duals", [None, "zeros", "huge"])
+def test_suboptimal_engine_flow_is_refused(client, monkeypatch, caplog, duals):
     def worse(net):
-        # the identity matching (cells 0, 4, 8) costs 4 + 0 + 2 = 6, not optimal
-        return Flow(arc=np.array([0, 4, 8]), amount=np.ones(3, np.int64))
+        # the identity matching (cells 0, 4, 8) costs 4 + 0 + 2 = 6, not optimal; with or
+        # without duals claimed for it, no potentials can prove it
+        claimed = {None: None, "zeros": np.zeros(9), "huge": np.full(9, 1e300)}[duals]
+        return "lapjv", Run(Flow(arc=np.array([0, 4, 8]), amount=np.ones(3, np.int64)),
+                            claimed)
 
     monkeypatch.setattr(dense_assignment, "solve", worse)
     with caplog.at_level(logging.ERROR):
