@@ -14,6 +14,7 @@ from service.http import observe
 from service.http.body import current_settings, json_body, json_response
 from service.http.limits import time_limits_told_apart
 from service.settings import Settings
+from service.solve.deadline import counted_from_arrival
 from service.solve.pipeline import request_scope, solve_body, verify_body
 
 api_bp = Blueprint("api", __name__)
@@ -54,9 +55,10 @@ def _answered(work: Callable[[Any], Response]) -> Response:
         scope.close()
 
     try:
-        parsed.append(json_body())
-        with time_limits_told_apart(parsed[0], current_settings()):
-            response = work(parsed[0])
+        with counted_from_arrival():        # the limit counts reading and parsing the body
+            parsed.append(json_body())
+            with time_limits_told_apart(parsed[0], current_settings()):
+                response = work(parsed[0])
     except BaseException:
         finish()
         raise

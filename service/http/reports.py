@@ -14,6 +14,7 @@ from werkzeug.exceptions import BadRequest
 from service.http.body import current_settings, json_body
 from service.http.limits import time_limits_told_apart
 from service.report import FORMATS, MEDIA_TYPES, build_report
+from service.solve.deadline import counted_from_arrival
 
 report_bp = Blueprint("report", __name__)
 
@@ -25,9 +26,10 @@ def report() -> Response:
         # A query parameter is not part of the problem, so not an invalid-problem (whose
         # pointers point into the body): a plain 400, as HTTP means it.
         raise BadRequest(f"format must be one of {', '.join(FORMATS)}, not {fmt!r}")
-    body = json_body()
-    settings = current_settings()
-    with time_limits_told_apart(body, settings):
-        document, _ = build_report(body, settings, fmt)
+    with counted_from_arrival():            # the limit counts reading and parsing the body
+        body = json_body()
+        settings = current_settings()
+        with time_limits_told_apart(body, settings):
+            document, _ = build_report(body, settings, fmt)
     # The verdict is in the page: a NOT VALID answer is a successfully written report.
     return Response(document, status=200, content_type=MEDIA_TYPES[fmt])

@@ -29,11 +29,12 @@ import threading
 import time
 from collections.abc import Iterator
 from contextlib import contextmanager
+from contextvars import ContextVar
 from typing import Any
 
 from service.errors import ServerBusy, ServiceError, TimeLimitExceeded
 
-__all__ = ["BUSY_LOST_S", "BUSY_SHARE", "deadline", "time_limit_error"]
+__all__ = ["BUSY_LOST_S", "BUSY_SHARE", "counted_from_arrival", "deadline", "time_limit_error"]
 
 #: The request counts as starved of CPU when its CPU seconds are less than this share of
 #: its limit...
@@ -69,6 +70,25 @@ _wall = time.monotonic
 _cpu = _request_cpu
 
 
+#: When the request being served arrived (real time, CPU time), if the caller said so.
+_arrival: ContextVar[tuple[float, float] | None] = ContextVar("certimatch_arrival", default=None)
+
+
+@contextmanager
+def counted_from_arrival() -> Iterator[None]:
+    """Count every :func:`deadline` opened inside from now, not from when it opens.
+
+    The HTTP edge enters this before it reads the body: reading and parsing a large body
+    (tens of megabytes take a good part of a second) are then part of the time limit, so a
+    request is answered within its limit plus what follows the work (writing the answer).
+    """
+    token = _arrival.set((_wall(), _cpu()))
+    try:
+        yield
+    finally:
+        _arrival.reset(token)
+
+
 def time_limit_error(seconds: float, what: str, cpu_s: float, elapsed_s: float
                      ) -> ServiceError:
     """The error for a limit of ``seconds`` that ran out after ``elapsed_s`` seconds, of
@@ -95,7 +115,8 @@ def deadline(seconds: float, what: str) -> Iterator[bool]:
         return
 
     armed = [True]
-    started = (_wall(), _cpu())
+    started = _arrival.get() or (_wall(), _cpu())
+    left = seconds - (_wall() - started[0])
 
     def _expire(signum: int, frame: Any) -> None:
         if not armed[0]:
@@ -109,7 +130,7 @@ def deadline(seconds: float, what: str) -> Iterator[bool]:
     try:
         try:
             # a timer of less than a microsecond would round to 0, which disarms it
-            signal.setitimer(signal.ITIMER_REAL, max(seconds, 1e-6))
+            signal.setitimer(signal.ITIMER_REAL, max(left, 1e-6))
             yield True
         finally:
             armed[0] = False

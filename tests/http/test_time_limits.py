@@ -138,3 +138,63 @@ def test_busy_means_little_cpu_and_real_time_lost(limit, cpu, elapsed, busy):
     error = time_limit_error(limit, "solving this problem", cpu, elapsed)
     assert isinstance(error, ServerBusy if busy else TimeLimitExceeded)
     assert ("Retry-After" in error.headers) == busy
+
+
+# --- the limit counts from the request's arrival ----------------------------------------------
+
+def _slow_body(seconds: float) -> Any:
+    """json_body that takes ``seconds`` of CPU before it returns (a very large body)."""
+    from service.http import body as body_module
+    real = body_module.json_body
+
+    def read() -> Any:
+        end = time.monotonic() + seconds
+        while time.monotonic() < end:
+            pass
+        return real()
+    return read
+
+
+@pytest.mark.usefixtures("had_the_cpu")
+@pytest.mark.parametrize("path", ["/v1/solve", "/v1/verify"])
+def test_reading_and_parsing_the_body_count_against_the_limit(
+        monkeypatch: pytest.MonkeyPatch, path: str, with_answer: dict[str, Any]) -> None:
+    # A problem solved well within 0.2 s runs out of a 0.2 s limit when reading its body
+    # took 0.3 s: a request is answered within its limit plus the writing of its answer.
+    monkeypatch.setattr("service.http.api.json_body", _slow_body(0.3))
+    body = {**(GOOD if path == "/v1/solve" else with_answer), "time_limit_s": 0.2}
+    doc = _answer(clean_app().test_client(), path, body, 422).get_json()
+    assert doc["type"] == "urn:certimatch:problem:time-limit"
+    assert doc["time_limit_s"] == 0.2
+
+
+@pytest.mark.usefixtures("had_the_cpu")
+def test_the_same_slow_body_with_room_in_its_limit_is_solved(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr("service.http.api.json_body", _slow_body(0.3))
+    response = clean_app().test_client().post("/v1/solve", json={**GOOD, "time_limit_s": 20})
+    assert response.status_code == 200, response.get_json()
+
+
+def test_a_deadline_inside_a_request_counts_from_its_arrival(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    # The command line and in-process callers have no arrival: their limit starts with
+    # the work. Inside counted_from_arrival, a limit already spent (the clock stood in for:
+    # 10 s passed since the arrival) fires at once instead of 5 s later.
+    now = [100.0]
+    monkeypatch.setattr(deadline_module, "_wall", lambda: now[0])
+    monkeypatch.setattr(deadline_module, "_cpu", lambda: now[0])
+
+    def half_a_second() -> bool:
+        end = time.monotonic() + 0.5
+        while time.monotonic() < end:
+            pass
+        return True
+
+    with deadline_module.deadline(5.0, "x"):
+        assert half_a_second()              # no arrival: 5 s left
+    with pytest.raises(TimeLimitExceeded):
+        with deadline_module.counted_from_arrival():
+            now[0] += 10.0
+            with deadline_module.deadline(5.0, "x"):
+                half_a_second()
