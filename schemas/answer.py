@@ -86,6 +86,9 @@ class AnswerSchema(Schema):
     unmet = RecordList(UnmetSchema, required=True)
     unused = RecordList(AmountSchema, required=True)
     certificate = fields.Nested(CertificateSchema, required=True)
+    data = fields.Dict(keys=fields.String(), values=fields.Dict(), metadata={
+        "description": "the data objects of the request's sources, nodes and sinks by id; "
+                       "checked when present"})
 
 
 class SolveResultSchema(AnswerSchema):

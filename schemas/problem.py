@@ -16,6 +16,17 @@ UNMET_POLICIES = ("minimize", "reject")
 MAX_TIME_LIMIT = 86_400
 #: The lists that declare ids, in the order the ids are numbered (README, "Determinism").
 ID_TABLES = ("sources", "nodes", "sinks")
+#: Longest ``data`` object of a source, sink or node, in bytes of compact JSON (UTF-8).
+MAX_DATA_BYTES = 4096
+
+
+def _data_field() -> fields.Dict:
+    return fields.Dict(metadata={
+        "max_bytes": MAX_DATA_BYTES,
+        "description": "any JSON object of at most 4096 bytes (compact JSON, UTF-8); "
+                       "not read by the solver, handed back in the answer's data"})
+
+
 #: The columns of an arc that name ids.
 ARC_ENDS = ("from", "to")
 
@@ -25,6 +36,7 @@ class SourceSchema(Schema):
 
     id = fields.String(required=True)
     supply = fields.Integer(load_default=1, metadata={"description": "units it can send at most"})
+    data = _data_field()
 
 
 class SinkSchema(Schema):
@@ -34,12 +46,14 @@ class SinkSchema(Schema):
     demand = fields.Integer(load_default=1)
     penalty = fields.Float(metadata={"description": "cost of each unit left unmet",
                                      "minimum": 0})
+    data = _data_field()
 
 
 class NodeSchema(Schema):
     """A transshipment node (depot, hub): what enters leaves."""
 
     id = fields.String(required=True)
+    data = _data_field()
 
 
 class ArcSchema(Schema):

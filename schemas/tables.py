@@ -23,6 +23,7 @@ from operator import is_not
 from typing import Any
 
 import numpy as np
+import orjson
 from marshmallow import Schema, ValidationError, fields, missing
 
 from schemas.numbers import (
@@ -57,6 +58,8 @@ class Table:
 
 
 def _column_kind(f: fields.Field) -> str:
+    if isinstance(f, fields.Dict):
+        return "object"
     if isinstance(f, fields.Boolean):
         return "flag"
     if isinstance(f, fields.Integer):
@@ -143,6 +146,14 @@ class RecordList(fields.Field):
                          else "must be a non-empty string")
                 counted += n - len(bad)
                 continue
+            if kind == "object":
+                present, bad = _objects(col, f.metadata["max_bytes"])
+                for i, why in bad:
+                    _add(errors, i, key, why)
+                counted += int(np.count_nonzero(present))
+                table.columns[key] = col
+                table.present[key] = present
+                continue
             if kind == "flag":
                 vals, present, bad = _flags(col, nullable=optional)
                 for i in bad:
@@ -203,6 +214,10 @@ class RecordList(fields.Field):
     @staticmethod
     def _absent(table: Table, key: str, kind: str, default: Any) -> None:
         """Fill a column no record has: its default, or zeros marked not present."""
+        if kind == "object":
+            table.columns[key] = [None] * table.length
+            table.present[key] = np.zeros(table.length, bool)
+            return
         dtype = {"count": np.int64, "flag": np.bool_}.get(kind, np.float64)
         if default is missing:
             table.columns[key] = np.zeros(table.length, dtype)
@@ -220,6 +235,27 @@ def _flags(values: list[Any], *, nullable: bool) -> tuple[np.ndarray, np.ndarray
     bad = [i for i, v in enumerate(values)
            if type(v) is not bool and not (nullable and v is None)]
     return np.array([v is True for v in values], bool).reshape(n), present, bad
+
+
+def _objects(values: list[Any], max_bytes: int) -> tuple[np.ndarray, list[tuple[int, str]]]:
+    """(present, bad) of a column of JSON objects or nulls, each at most ``max_bytes`` long
+    written as compact JSON (UTF-8). Only the records that carry one are measured."""
+    present = np.fromiter(map(is_not, values, repeat(None)), bool, len(values))
+    bad: list[tuple[int, str]] = []
+    for i in np.flatnonzero(present).tolist():
+        value = values[i]
+        if type(value) is not dict:
+            bad.append((i, "must be a JSON object"))
+            continue
+        try:
+            size = len(orjson.dumps(value))
+        except (TypeError, orjson.JSONEncodeError):
+            bad.append((i, "must be a JSON object whose integers fit in 64 bits"))
+            continue
+        if size > max_bytes:
+            bad.append((i, f"must be at most {max_bytes} bytes written as compact JSON "
+                           f"(UTF-8); this one is {size}"))
+    return present, bad
 
 
 def _positions(names: list[Any], index: dict[str, int]) -> np.ndarray | None:

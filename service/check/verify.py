@@ -19,6 +19,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+import orjson
 
 from service.check.checks import _Checks, _result
 from service.check.duals import (
@@ -66,6 +67,9 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
                "certificate is for the min form" + (" with costs negated" if net.maximize
                                                     else ""))
 
+    if "data" in answer:
+        checks.add("data", _data_differs(net, answer["data"]),
+                   "data as the problem carries it")
     used = _allocation(net, answer["allocation"], index, checks)
     if used is None:
         checks.skip(["capacity", "conservation", "supply", "demand", *_AFTER_BALANCES],
@@ -183,6 +187,30 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
         bad_dual = None
     checks.add("dual_objective", bad_dual, "dual objective equals the objective")
     return _result(checks)
+
+
+def _data_differs(net: Network, data: dict[str, Any]) -> str | None:
+    """What differs between an answer's ``data`` and the problem's, or None: the same ids,
+    each with the same object (compared as sorted compact JSON, so 1 and 1.0 differ)."""
+    if list(data) != list(net.data):
+        extra = [k for k in data if k not in net.data]
+        lost = [k for k in net.data if k not in data]
+        if extra:
+            return f"data for {extra[0]!r}, which carries none in the problem"
+        if lost:
+            return f"data for {lost[0]!r} is missing"
+        return "data lists the ids out of order (sources, nodes, sinks, as in the problem)"
+    for key, value in data.items():
+        if _json(value) != _json(net.data[key]):
+            return f"data for {key!r} differs from the problem's"
+    return None
+
+
+def _json(value: Any) -> bytes | None:
+    try:
+        return orjson.dumps(value, option=orjson.OPT_SORT_KEYS)
+    except (TypeError, orjson.JSONEncodeError):
+        return None
 
 
 def _policy_breach(net: Network, hard_unmet: int, shortfall: int) -> str | None:

@@ -79,7 +79,20 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
         penalty=np.where(penalty_present, _scaled(penalty, scale), 0),
         soft=penalty_present.copy(), dense=dense, arc_list=arc_list,
         maximize=sign < 0, reject_unmet=data["unmet_demand"] == "reject", cost_scale=scale,
+        data=_carried(groups),
     )
+
+
+def _carried(groups: list) -> dict[str, Any]:
+    """The ``data`` objects of sources, nodes and sinks by id, in numbering order."""
+    found: dict[str, Any] = {}
+    for _, table in groups:
+        if table is None or not table.present["data"].any():
+            continue
+        ids, values = table.columns["id"], table.columns["data"]
+        for i in np.flatnonzero(table.present["data"]).tolist():
+            found[ids[i]] = values[i]
+    return found
 
 
 def _scale_for(costs: np.ndarray, penalties: np.ndarray) -> int:

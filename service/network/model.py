@@ -17,8 +17,9 @@ the independent checker reads it. :mod:`service.network.build` makes it from a r
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cached_property
+from typing import Any
 
 import numpy as np
 
@@ -70,6 +71,8 @@ class Network:
     maximize: bool
     reject_unmet: bool
     cost_scale: int
+    #: the ``data`` objects of the request by id, in numbering order; never read by a solver
+    data: dict[str, Any] = field(default_factory=dict)
 
     @property
     def sink_offset(self) -> int:

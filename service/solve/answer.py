@@ -94,7 +94,7 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
         arcs = net.arc_list
         cut_capacity += int(arcs.capacity[~side[arcs.tail] & side[arcs.head]].sum())
     potentials = _values(net, pi)
-    return {
+    answer: dict[str, Any] = {
         "status": "optimal",
         "shape": solution.shape,
         "solver": solution.solver,
@@ -121,3 +121,6 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
             "dual_objective": _value(net, sign * cert.dual),
         },
     }
+    if net.data:
+        answer["data"] = net.data
+    return answer
