@@ -147,8 +147,8 @@ class RecordList(fields.Field):
                 counted += n - len(bad)
                 continue
             if kind == "object":
-                present, bad = _objects(col, f.metadata["max_bytes"])
-                for i, why in bad:
+                present, faults = _objects(col, f.metadata["max_bytes"])
+                for i, why in faults:
                     _add(errors, i, key, why)
                 counted += int(np.count_nonzero(present))
                 table.columns[key] = col
