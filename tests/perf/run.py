@@ -1,20 +1,24 @@
-"""certimatch benchmark: the service against the bare floor, side by side, in one run.
+"""certimatch benchmark: the service, the bare script and the best bare floor, side by side.
 
     .venv/bin/python tests/perf/run.py [--families A,B,C,D,E] [--quick] [--out DIR]
 
 For every instance of the seeded families (generators.py) it measures, interleaving the
 measurements round by round so that a noisy neighbour hits all of them alike:
 
-1. end to end over HTTP through a real gunicorn (deploy/gunicorn.conf.py, 2 workers);
+1. the service end to end over HTTP through a real gunicorn (deploy/gunicorn.conf.py,
+   2 workers), once per wire form (``FORMS``: the body as the request records);
 2. the service's phases in-process on the same bytes (parse, pipeline phases, serialise);
-3. peak memory of an in-process solve in a fresh subprocess, minus a baseline subprocess
+3. the bare script a user would write (floors.py): orjson parse + numpy arrays + the scipy
+   or OR-Tools call, no certificate; and on the same arrays every candidate bare floor
+   (lapjv, POT's network simplex), the fastest of which is *the* floor;
+4. peak memory of an in-process solve in a fresh subprocess, minus a baseline subprocess
    that only imports and parses;
-4. the bare floor: parse + numpy arrays + the bare library call, no certificate;
 5. for min-cost-flow families, scipy linprog (HiGHS) and networkx network_simplex;
 6. throughput of a 10 x 10 solve against a hello-world Flask route, with wrk.
 
-Medians of repeated runs; ratios rather than absolute times. tests/perf/README.md says what
-each column means. Traffic goes to 127.0.0.1 only, and every loop and wait is bounded.
+Medians of repeated runs; ratios rather than absolute times; the bars of issue 15 with
+met / not met (report.py). tests/perf/README.md says what each column means. Traffic goes
+to 127.0.0.1 only, and every loop and wait is bounded.
 """
 
 from __future__ import annotations
@@ -22,9 +26,7 @@ from __future__ import annotations
 import argparse
 import datetime
 import json
-import math
 import os
-import platform
 import re
 import resource
 import shutil
@@ -36,8 +38,6 @@ import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
-from itertools import chain, repeat
-from operator import itemgetter
 from pathlib import Path
 from typing import Any
 
@@ -47,11 +47,17 @@ for _p in (str(ROOT), str(HERE.parent), str(HERE)):
     if _p not in sys.path:
         sys.path.insert(0, _p)
 
+import floors  # noqa: E402
 import generators as gen  # noqa: E402
 import numpy as np  # noqa: E402
 import orjson  # noqa: E402
+import report  # noqa: E402
 import requests  # noqa: E402
+from floors import BenchError, timed  # noqa: E402
+from report import ALL_PHASES, machine  # noqa: E402
 from servers import Gunicorn, ServerFailed  # noqa: E402
+
+__all__ = ["BenchError", "log", "machine", "serving"]   # what worst.py uses
 
 JSON_HEADERS = {"Content-Type": "application/json"}
 HTTP_TIMEOUT = 600.0      # bound on one request (the worker's own timeout is lower)
@@ -61,17 +67,32 @@ NETWORKX_MAX_ARCS = 200_000   # beyond this network_simplex takes minutes: skipp
 WRK_ARGS = ["-t2", "-c8", "-d5s", "--timeout", "10s"]
 WRK_ROUNDS = 3
 SMALL_PHASE_RUNS = 200    # in-process runs of the 10 x 10 problem, for its phase medians
-PHASES = ("validate", "normalise", "solve", "certify", "answer", "self_verify")
-ALL_PHASES = ("parse", *PHASES, "serialise")
 DEFAULT_BODY_LIMIT = 64 * 1024 * 1024   # service.settings default MAX_BODY_BYTES
-
-
-class BenchError(RuntimeError):
-    """A measurement that could not be taken; recorded in the table, the run goes on."""
 
 
 def log(msg: str) -> None:
     print(f"[{time.strftime('%H:%M:%S')}] {msg}", file=sys.stderr, flush=True)
+
+
+# --------------------------------------------------------------------------- wire forms
+
+
+@dataclass(frozen=True)
+class Form:
+    """One way of sending the same problem over HTTP: its body bytes and headers.
+
+    ``encode`` turns the request dict (record form, as the generators make it) into the
+    bytes sent; every form must get the same answer, byte for byte.
+    """
+
+    name: str
+    encode: Callable[[dict[str, Any]], bytes]
+    headers: dict[str, str]
+
+
+#: The forms measured over HTTP, in table order; "record" is the one the in-process
+#: phases, the script and the floors read.
+FORMS: tuple[Form, ...] = (Form("record", orjson.dumps, JSON_HEADERS),)
 
 
 # --------------------------------------------------------------------------- instances
@@ -79,41 +100,52 @@ def log(msg: str) -> None:
 
 @dataclass(frozen=True)
 class Instance:
-    """One benchmark problem; ``series`` instances form the A and D growth curves."""
+    """One benchmark problem; ``series`` instances form the A and D growth curves;
+    ``bars``: issue 15's instance bars it belongs to ("big": D 150k, D 1M, E; "assign":
+    A 2000, A 4000; "mid": A 500, D 10k-50k, C at 60k arcs). The "every family from
+    1000 x 1000 or 30k arcs" bar is decided by size (report.large)."""
 
     key: str
     family: str
-    kind: str                 # "dense" | "sparse" | "flow": which floor applies
+    kind: str                 # "dense" | "sparse" | "flow": which floors apply
     make: Callable[[], dict[str, Any]]
     series: bool = True
+    bars: tuple[str, ...] = ()
 
 
 def plan(families: set[str], quick: bool) -> list[Instance]:
-    """The instances of issue 3, or small ones for ``--quick``, in run order."""
+    """The instances of issue 15, or the mid-size ones for ``--quick``, in run order."""
     out: list[Instance] = []
     a_sizes = (250, 500) if quick else (250, 500, 1000, 2000, 4000)
     for n in a_sizes:
+        groups = ("mid",) if n == 500 else ("assign",) if n >= 2000 else ()
         out.append(Instance(f"A {n}x{n}", "A", "dense",
-                            lambda n=n: gen.dense_assignment(n, seed=1)))
+                            lambda n=n: gen.dense_assignment(n, seed=1), bars=groups))
     b_shape = (200, 1000) if quick else (1000, 5000)
     out.append(Instance(f"B {b_shape[0]}x{b_shape[1]}", "B", "dense",
                         lambda: gen.dense_assignment(*b_shape, seed=2)))
-    c_n = 2000 if quick else 20_000
-    out.append(Instance(f"C {c_n}x{c_n}", "C", "sparse",
-                        lambda: gen.sparse_assignment(c_n, seed=3)))
-    d_arcs = (10_000, 50_000) if quick else (10_000, 30_000, 100_000, 300_000, 1_000_000)
+    for c_n in (2000,) if quick else (2000, 20_000):
+        # 2000 x 2000 with 30 pairs a row: the issue's "C at 60k arcs"
+        out.append(Instance(f"C {c_n}x{c_n}", "C", "sparse",
+                            lambda c_n=c_n: gen.sparse_assignment(c_n, seed=3),
+                            bars=("mid",) if c_n == 2000 else ()))
+    d_arcs = (10_000, 50_000) if quick else (10_000, 30_000, 50_000, 100_000, 300_000,
+                                             1_000_000)
     for arcs in d_arcs:
+        groups = ("mid",) if arcs <= 50_000 else ("big",) if arcs == 1_000_000 else ()
         out.append(Instance(f"D {_short(arcs)} arcs", "D", "flow",
-                            lambda a=arcs: gen.ticket_routing_scaled(a, seed=5)))
+                            lambda a=arcs: gen.ticket_routing_scaled(a, seed=5), bars=groups))
     if not quick:
         # the issue's headline instance: 300 agents, 5,000 tickets; not on the scaled
         # curve (its supply covers 1.8x the demand, the series' 1.2x)
         out.append(Instance("D 150k (300 agents)", "D", "flow",
-                            lambda: gen.ticket_routing(5000, 300, seed=4), series=False))
+                            lambda: gen.ticket_routing(5000, 300, seed=4), series=False,
+                            bars=("big",)))
     e_args = (dict(stores=450, warehouses=8, depots=40, wh_per_depot=4, depots_per_store=10)
               if quick else {})
     out.append(Instance("E transshipment", "E", "flow",
-                        lambda: gen.transshipment(seed=6, **e_args)))
+                        lambda: gen.transshipment(seed=6, **e_args),
+                        bars=() if quick else ("big",)))
     return [i for i in out if i.family in families]
 
 
@@ -163,202 +195,6 @@ def warm_memory(cap_gib: float) -> dict[str, float] | None:
     return {"gib": float(gib), "seconds": first}
 
 
-# --------------------------------------------------------------------------- the floor
-
-
-def _libs() -> None:
-    """Import everything any measurement needs, so memory baselines are alike."""
-    import ortools.graph.python.min_cost_flow  # noqa: F401
-    import scipy.optimize  # noqa: F401
-    import scipy.sparse.csgraph  # noqa: F401
-
-    import service.solve.pipeline  # noqa: F401
-
-
-@dataclass
-class FlowArrays:
-    """A min-cost-flow request as plain arrays: nodes sources, then nodes, then sinks."""
-
-    n_nodes: int
-    n_sources: int
-    sink_offset: int
-    tail: np.ndarray
-    head: np.ndarray
-    cost: np.ndarray
-    capacity: np.ndarray       # total demand where unbounded
-    bounded: np.ndarray
-    supply: np.ndarray
-    demand: np.ndarray
-
-
-def flow_arrays(d: dict[str, Any]) -> FlowArrays:
-    """Ids to indices with one dict; columns with C-level map/fromiter (no Python loop
-    body per arc), which is the cheapest way we know from parsed JSON to numpy."""
-    sources, sinks, nodes = d["sources"], d["sinks"], d.get("nodes") or []
-    ids = list(chain(map(itemgetter("id"), sources), map(itemgetter("id"), nodes),
-                     map(itemgetter("id"), sinks)))
-    index = dict(zip(ids, range(len(ids)), strict=True))
-    arcs = d["arcs"]
-    m = len(arcs)
-    tail = np.fromiter(map(index.__getitem__, map(itemgetter("from"), arcs)), np.int64, m)
-    head = np.fromiter(map(index.__getitem__, map(itemgetter("to"), arcs)), np.int64, m)
-    cost = np.fromiter(map(itemgetter("cost"), arcs), np.int64, m)
-    supply = np.fromiter(map(dict.get, sources, repeat("supply"), repeat(1)), np.int64,
-                         len(sources))
-    demand = np.fromiter(map(dict.get, sinks, repeat("demand"), repeat(1)), np.int64,
-                         len(sinks))
-    raw = np.fromiter(map(dict.get, arcs, repeat("capacity"), repeat(-1)), np.int64, m)
-    bounded = raw >= 0
-    capacity = np.where(bounded, raw, int(demand.sum()))
-    return FlowArrays(len(ids), len(sources), len(sources) + len(nodes), tail, head, cost,
-                      capacity, bounded, supply, demand)
-
-
-def _timed(fn: Callable[..., Any], *args: Any) -> tuple[Any, float]:
-    start = time.perf_counter()
-    out = fn(*args)
-    return out, time.perf_counter() - start
-
-
-def floor_once(body: bytes, kind: str) -> dict[str, Any]:
-    """parse + arrays + bare library call; ``objective`` to hold the service to account."""
-    d, t_parse = _timed(orjson.loads, body)
-    out = floor_parsed(d, kind)
-    out["parse"] = t_parse
-    out["total"] += t_parse
-    return out
-
-
-def floor_parsed(d: dict[str, Any], kind: str) -> dict[str, Any]:
-    """The floor after the parse: arrays and the bare library call."""
-    if kind == "dense":
-        arrays, t_arrays = _timed(_dense_arrays, d)
-        (r, c), t_call = _timed(_dense_call, arrays)
-        objective = int(arrays[r, c].sum())
-    elif kind == "sparse":
-        arrays, t_arrays = _timed(_sparse_arrays, d)
-        (graph, r, c), t_call = _timed(_sparse_call, *arrays)
-        objective = int(np.asarray(graph[r, c]).sum())
-    else:
-        arrays, t_arrays = _timed(flow_arrays, d)
-        objective, t_call = _timed(_flow_call, arrays)
-    return {"arrays": t_arrays, "call": t_call, "total": t_arrays + t_call,
-            "objective": objective}
-
-
-def _dense_arrays(d: dict[str, Any]) -> np.ndarray:
-    # ids mapped as any service must, even though the dense call only needs positions
-    index = {v: i for i, v in enumerate(chain(map(itemgetter("id"), d["sources"]),
-                                             map(itemgetter("id"), d["sinks"])))}
-    rows = d["costs"]
-    n, m = len(rows), len(rows[0])
-    assert len(index) == n + m
-    # fromiter over the flattened rows measured ~15 % faster than np.array(rows)
-    return np.fromiter(chain.from_iterable(rows), np.float64, n * m).reshape(n, m)
-
-
-def _dense_call(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    from scipy.optimize import linear_sum_assignment
-
-    return linear_sum_assignment(matrix)
-
-
-def _sparse_arrays(d: dict[str, Any]) -> tuple[np.ndarray, ...]:
-    src = {v: i for i, v in enumerate(map(itemgetter("id"), d["sources"]))}
-    snk = {v: i for i, v in enumerate(map(itemgetter("id"), d["sinks"]))}
-    arcs = d["arcs"]
-    m = len(arcs)
-    rows = np.fromiter(map(src.__getitem__, map(itemgetter("from"), arcs)), np.int64, m)
-    cols = np.fromiter(map(snk.__getitem__, map(itemgetter("to"), arcs)), np.int64, m)
-    cost = np.fromiter(map(itemgetter("cost"), arcs), np.float64, m)
-    return rows, cols, cost, np.array([len(src), len(snk)])
-
-
-def _sparse_call(rows: np.ndarray, cols: np.ndarray, cost: np.ndarray,
-                 shape: np.ndarray) -> tuple[Any, np.ndarray, np.ndarray]:
-    from scipy.sparse import csr_matrix
-    from scipy.sparse.csgraph import min_weight_full_bipartite_matching
-
-    # the generator's costs are >= 1, so scipy's dropping of explicit zeros cannot bite
-    graph = csr_matrix((cost, (rows, cols)), shape=tuple(shape.tolist()))
-    r, c = min_weight_full_bipartite_matching(graph)
-    return graph, r, c
-
-
-def _flow_call(a: FlowArrays) -> int:
-    """OR-Tools on the plain network: a super-source feeds each source up to its supply
-    and holds the total demand; sinks take exactly their demand (the families are
-    feasible by construction, so no shortfall stage is needed)."""
-    from ortools.graph.python import min_cost_flow
-
-    s = a.n_nodes
-    src = np.arange(a.n_sources, dtype=np.int64)
-    solver = min_cost_flow.SimpleMinCostFlow()
-    solver.add_arcs_with_capacity_and_unit_cost(
-        np.concatenate([a.tail, np.full(a.n_sources, s)]).astype(np.int32),
-        np.concatenate([a.head, src]).astype(np.int32),
-        np.concatenate([a.capacity, a.supply]),
-        np.concatenate([a.cost, np.zeros(a.n_sources, np.int64)]))
-    supplies = np.zeros(a.n_nodes + 1, np.int64)
-    supplies[a.sink_offset:a.n_nodes] = -a.demand
-    supplies[s] = a.demand.sum()
-    solver.set_nodes_supplies(np.arange(a.n_nodes + 1, dtype=np.int32), supplies)
-    status = solver.solve()
-    if status != solver.OPTIMAL:
-        raise BenchError(f"floor min-cost flow: {status}")
-    return int(solver.optimal_cost())
-
-
-# --------------------------------------------------------------------------- alternatives
-
-
-def linprog_once(body: bytes) -> dict[str, Any]:
-    """The LP a user might write: min c.x, out - in <= supply at sources, = 0 at nodes,
-    = -demand at sinks, 0 <= x <= capacity; HiGHS through scipy."""
-    from scipy.optimize import linprog
-    from scipy.sparse import coo_matrix
-
-    start = time.perf_counter()
-    a = flow_arrays(orjson.loads(body))
-    m = len(a.tail)
-    k = np.arange(m)
-    incidence = coo_matrix(
-        (np.concatenate([np.ones(m), -np.ones(m)]),
-         (np.concatenate([a.tail, a.head]), np.concatenate([k, k]))),
-        shape=(a.n_nodes, m)).tocsr()
-    b_eq = np.zeros(a.n_nodes - a.n_sources)
-    b_eq[a.sink_offset - a.n_sources:] = -a.demand
-    upper = np.where(a.bounded, a.capacity, np.inf)
-    res = linprog(a.cost, A_ub=incidence[: a.n_sources], b_ub=a.supply,
-                  A_eq=incidence[a.n_sources:], b_eq=b_eq,
-                  bounds=np.column_stack([np.zeros(m), upper]), method="highs")
-    seconds = time.perf_counter() - start
-    if res.status != 0:
-        raise BenchError(f"linprog: {res.message}")
-    return {"seconds": seconds, "objective": round(float(res.fun))}
-
-
-def networkx_once(body: bytes) -> dict[str, Any]:
-    """networkx.network_simplex on the same network (graph building included)."""
-    import networkx as nx
-
-    start = time.perf_counter()
-    a = flow_arrays(orjson.loads(body))
-    g = nx.DiGraph()
-    s = a.n_nodes
-    g.add_node(s, demand=-int(a.demand.sum()))
-    g.add_nodes_from(range(a.n_nodes))
-    g.add_nodes_from((a.sink_offset + j, {"demand": q}) for j, q in enumerate(a.demand.tolist()))
-    g.add_edges_from((s, i, {"weight": 0, "capacity": u})
-                     for i, u in enumerate(a.supply.tolist()))
-    g.add_edges_from(
-        (t, h, {"weight": c, "capacity": u} if b else {"weight": c})
-        for t, h, c, u, b in zip(a.tail.tolist(), a.head.tolist(), a.cost.tolist(),
-                                 a.capacity.tolist(), a.bounded.tolist(), strict=True))
-    cost, _ = nx.network_simplex(g)
-    return {"seconds": time.perf_counter() - start, "objective": int(cost)}
-
-
 # --------------------------------------------------------------------------- in-process
 
 
@@ -367,9 +203,9 @@ def inprocess_once(body: bytes, settings: Any) -> tuple[dict[str, float], bytes]
     from service.solve.pipeline import solve_body
 
     t: dict[str, float] = {}
-    data, t["parse"] = _timed(orjson.loads, body)
+    data, t["parse"] = timed(orjson.loads, body)
     answer = solve_body(data, settings, timings=t)
-    out, t["serialise"] = _timed(orjson.dumps, answer)
+    out, t["serialise"] = timed(orjson.dumps, answer)
     return t, out
 
 
@@ -377,11 +213,12 @@ def probe_main(mode: str, path: str, kind: str) -> None:
     """Entry of the measuring subprocesses: one JSON line on stdout."""
     if mode in ("linprog", "networkx"):
         body = Path(path).read_bytes()
-        print(json.dumps(linprog_once(body) if mode == "linprog" else networkx_once(body)))
+        once = floors.linprog_once if mode == "linprog" else floors.networkx_once
+        print(json.dumps(once(body)))
         return
-    if mode not in ("baseline", "service", "floor"):
+    if mode not in ("baseline", "service", "script"):
         raise SystemExit(f"unknown probe {mode}")
-    _libs()
+    floors.libs()
     body = Path(path).read_bytes()
     # the same imports and parse in every mode; the parsed body stays alive throughout
     data = orjson.loads(body)
@@ -392,14 +229,13 @@ def probe_main(mode: str, path: str, kind: str) -> None:
         from service.solve.pipeline import solve_body
 
         out["answer_bytes"] = len(orjson.dumps(solve_body(data, load_settings())))
-    elif mode == "floor":
-        out["objective"] = floor_parsed(data, kind)["objective"]
+    elif mode == "script":
+        out["objective"] = floors.script_parsed(data, kind)
     out["hwm_reset"] = reset
     out["hwm"] = vm_status("VmHWM")
     # kept for reference only: see vm_status for why it is not the measure
     out["ru_maxrss"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
     print(json.dumps(out))
-
 
 def reset_hwm() -> bool:
     """Set this process's VmHWM back to its current RSS (Linux >= 4.0, clear_refs "5").
@@ -482,9 +318,10 @@ def hello_app() -> Any:
     return app
 
 
-def http_once(url: str, body: bytes) -> tuple[float, bytes]:
+def http_once(url: str, body: bytes, headers: dict[str, str] | None = None
+              ) -> tuple[float, bytes]:
     start = time.perf_counter()
-    r = requests.post(url, data=body, headers=JSON_HEADERS, timeout=HTTP_TIMEOUT)
+    r = requests.post(url, data=body, headers=headers or JSON_HEADERS, timeout=HTTP_TIMEOUT)
     content = r.content
     elapsed = time.perf_counter() - start
     if r.status_code != 200:
@@ -493,7 +330,6 @@ def http_once(url: str, body: bytes) -> tuple[float, bytes]:
 
 
 # --------------------------------------------------------------------------- one instance
-
 
 def _repeats(first_e2e: float, override: int | None) -> tuple[int, int]:
     """(rounds to keep, warm-up rounds to discard first, the first one included).
@@ -516,86 +352,104 @@ def _repeats(first_e2e: float, override: int | None) -> tuple[int, int]:
     return 2, 0              # the largest sizes: keeps the full run within ~25 minutes
 
 
+
 def measure(inst: Instance, srv: Gunicorn, folder: Path, override: int | None) -> dict[str, Any]:
     from service.settings import load_settings
 
     settings = load_settings()
-    req, t_gen = _timed(inst.make)
+    req, t_gen = timed(inst.make)
     size, unit, input_bytes = size_of(req)
-    body = orjson.dumps(req)
+    bodies = {form.name: form.encode(req) for form in FORMS}
     del req
+    body = bodies["record"]
     path = folder / (re.sub(r"\W+", "_", inst.key) + ".json")
     path.write_bytes(body)
     res: dict[str, Any] = {"key": inst.key, "family": inst.family, "kind": inst.kind,
-                           "series": inst.series, "size": size, "unit": unit,
-                           "input_bytes": input_bytes, "body_bytes": len(body),
-                           "generate_s": t_gen, "samples": {}, "errors": []}
+                           "series": inst.series, "bars": inst.bars, "size": size,
+                           "unit": unit, "input_bytes": input_bytes, "body_bytes": len(body),
+                           "form_bytes": {k: len(v) for k, v in bodies.items()},
+                           "forms": [f.name for f in FORMS], "generate_s": t_gen,
+                           "script": floors.SCRIPT[inst.kind][0], "errors": []}
     log(f"{inst.key}: {size:,} {unit}, body {len(body) / 1e6:.1f} MB")
     url = srv.base + "/v1/solve"
-    samples: dict[str, list[float]] = {k: [] for k in
-                                       ("e2e", *ALL_PHASES, "floor_parse", "floor_arrays",
-                                        "floor_call", "floor")}
+    samples: dict[str, list[float]] = {}
     rounds, kept, warmup = 0, 1, 0
     answers: set[bytes] = set()
-    objective = floor_objective = None
+    objectives: dict[str, set[int]] = {}
     while rounds < kept + warmup:
-        # one round = each measurement once, back to back on the same bytes
-        e2e, http_answer = http_once(url, body)
+        # one round = each measurement once, back to back on the same problem
+        e2e: dict[str, float] = {}
+        for form in FORMS:
+            e2e[form.name], http_answer = http_once(url, bodies[form.name], form.headers)
+            answers.add(http_answer)
+            objectives.setdefault(f"service ({form.name})", set()).add(
+                orjson.loads(http_answer)["objective"])
         phases, local_answer = inprocess_once(body, settings)
-        floor = floor_once(body, inst.kind)
+        answers.add(local_answer)
+        bare = floors.bare_once(body, inst.kind)
+        for name, value in bare["objectives"].items():
+            objectives.setdefault(name, set()).add(value)
         if rounds == 0:
-            kept, warmup = _repeats(e2e, override)
-            objective = orjson.loads(http_answer)["objective"]
-            floor_objective = floor["objective"]
-        answers.update((http_answer, local_answer))
+            kept, warmup = _repeats(e2e["record"], override)
         rounds += 1
         if rounds <= warmup:
             continue
-        samples["e2e"].append(e2e)
-        for k in ALL_PHASES:
-            samples[k].append(phases[k])
-        for k in ("parse", "arrays", "call"):
-            samples["floor_" + k].append(floor[k])
-        samples["floor"].append(floor["total"])
+        got = {**{f"e2e:{k}": v for k, v in e2e.items()}, **phases,
+               "bare_parse": bare["parse"], "bare_arrays": bare["arrays"],
+               "script": bare["script"],
+               **{f"call:{k}": v for k, v in bare["calls"].items()},
+               **{f"floor:{k}": v for k, v in bare["floors"].items()}}
+        for k, v in got.items():
+            samples.setdefault(k, []).append(v)
+    res["engines"] = list(bare["calls"])
+    # the floor: the candidate engine with the least median, its samples round by round
+    best = min(res["engines"], key=lambda k: statistics.median(samples[f"floor:{k}"]))
+    res["floor_engine"] = best
+    samples["floor"] = samples[f"floor:{best}"]
     res["samples"] = samples
     res["median"] = {k: statistics.median(v) for k, v in samples.items()}
     # ratios are taken within each round and then the median over rounds: on a shared
     # machine the load drifts between rounds far more than within one
-    res["paired"] = {
-        "e2e_floor": _paired(samples, lambda i: samples["e2e"][i] / samples["floor"][i]),
+    paired = res["paired"] = {
         "check_solve": _paired(samples, lambda i: (samples["certify"][i]
                                                    + samples["self_verify"][i])
                                / samples["solve"][i]),
-        "rest": _paired(samples, lambda i: samples["e2e"][i]
+        "rest": _paired(samples, lambda i: samples["e2e:record"][i]
                         - sum(samples[k][i] for k in ALL_PHASES)),
     }
+    for form in FORMS:
+        e = samples[f"e2e:{form.name}"]
+        paired[f"script:{form.name}"] = _paired(samples, lambda i, e=e: e[i] / samples["script"][i])
+        paired[f"floor:{form.name}"] = _paired(samples, lambda i, e=e: e[i] / samples["floor"][i])
     res["repeats"] = kept
-    res["objective"] = objective
-    res["floor_objective"] = floor_objective
-    res["objective_match"] = objective == floor_objective
+    res["objectives"] = {k: sorted(v) for k, v in objectives.items()}
+    values = set().union(*objectives.values())
+    res["objective"] = min(values)
+    if len(values) != 1:
+        res["errors"].append(f"objectives differ: {res['objectives']}")
     res["deterministic"] = len(answers) == 1
-    if not res["objective_match"]:
-        res["errors"].append(f"objective {objective} != floor {floor_objective}")
     if not res["deterministic"]:
-        res["errors"].append("HTTP and in-process answers differ byte for byte")
+        res["errors"].append("the answers over HTTP and in-process differ byte for byte")
     med = res["median"]
-    log(f"  e2e {med['e2e']:.3f} s, floor {med['floor']:.3f} s, "
-        f"ratio {res['paired']['e2e_floor']:.2f} ({kept} rounds)")
+    log(f"  e2e {med['e2e:record']:.3f} s, script {med['script']:.3f} s, floor "
+        f"{med['floor']:.3f} s ({best}), e2e/script {paired['script:record']:.2f}, "
+        f"e2e/floor {paired['floor:record']:.2f} ({kept} rounds)")
 
     # peak memory: fresh interpreters, so one request's heap does not hide another's
     try:
         base = run_probe("baseline", path, inst.kind, PROBE_TIMEOUT)
         svc = run_probe("service", path, inst.kind, PROBE_TIMEOUT)
-        flo = run_probe("floor", path, inst.kind, PROBE_TIMEOUT)
-        res["memory"] = mem = {"baseline": base, "service": svc, "floor": flo}
-        for name, got in (("service", svc), ("floor", flo)):
+        scr = run_probe("script", path, inst.kind, PROBE_TIMEOUT)
+        res["memory"] = mem = {"baseline": base, "service": svc, "script": scr}
+        for name, got_ in (("service", svc), ("script", scr)):
             # what the solve adds to the parsed body: its own peak over the RSS before it
             # (HWM reset after the parse), and, the other way, the whole process's peak
             # over the baseline process's (imports + parse, no solve)
-            if got["hwm_reset"]:
-                mem[name + "_peak"] = got["hwm"] - got["rss_parsed"]
-            mem[name + "_over_baseline"] = max(got["hwm"], got["hwm_parse"]) - base["hwm"]
-        peak = _peak(mem, "service")
+            if got_["hwm_reset"]:
+                mem[name + "_peak"] = got_["hwm"] - got_["rss_parsed"]
+            mem[name + "_over_baseline"] = max(got_["hwm"], got_["hwm_parse"]) - base["hwm"]
+        peak = report.peak(mem, "service")
+        assert peak is not None
         log(f"  peak {peak / 2**20:.0f} MiB = {peak / input_bytes:.1f}x input")
     except BenchError as e:
         res["errors"].append(str(e))
@@ -611,7 +465,7 @@ def measure(inst: Instance, srv: Gunicorn, folder: Path, override: int | None) -
 
 
 def _paired(samples: dict[str, list[float]], of_round: Callable[[int], float]) -> float:
-    return statistics.median(of_round(i) for i in range(len(samples["e2e"])))
+    return statistics.median(of_round(i) for i in range(len(samples["e2e:record"])))
 
 
 def _alternative(mode: str, path: Path, inst: Instance, res: dict[str, Any],
@@ -639,7 +493,7 @@ def _alternative(mode: str, path: Path, inst: Instance, res: dict[str, Any],
     return out
 
 
-# --------------------------------------------------------------------------- throughput
+
 
 
 def wrk(url: str, script: Path | None) -> dict[str, Any]:
@@ -726,313 +580,6 @@ def throughput(srv: Gunicorn, folder: Path, env: dict[str, str]) -> dict[str, An
     return out
 
 
-# --------------------------------------------------------------------------- report
-
-
-def machine() -> dict[str, Any]:
-    from importlib.metadata import version
-
-    cpu = "unknown"
-    with open("/proc/cpuinfo") as f:
-        for line in f:
-            if line.startswith("model name"):
-                cpu = line.split(":", 1)[1].strip()
-                break
-    mem = 0
-    with open("/proc/meminfo") as f:
-        for line in f:
-            if line.startswith("MemTotal:"):
-                mem = int(line.split()[1]) * 1024
-    wrk_version = ""
-    if shutil.which("wrk"):
-        done = subprocess.run(["wrk", "-v"], capture_output=True, text=True, timeout=10,
-                              check=False)
-        wrk_version = (done.stdout or done.stderr).split("[")[0].strip()
-    return {"cpu": cpu, "cores": os.cpu_count(), "memory_gib": round(mem / 2**30, 1),
-            "os": platform.platform(), "python": platform.python_version(),
-            **{name: version(name) for name in
-               ("numpy", "scipy", "ortools", "networkx", "orjson", "flask", "gunicorn")},
-            "wrk": wrk_version}
-
-
-def ms(seconds: float | None) -> str:
-    """Milliseconds to three significant figures."""
-    if seconds is None or not math.isfinite(seconds):
-        return "–"
-    v = seconds * 1000
-    if abs(v) >= 100:
-        return f"{v:,.0f}"
-    if abs(v) >= 10:
-        return f"{v:.1f}"
-    return f"{v:.2f}"
-
-
-def ratio(a: float | None, b: float | None, digits: int = 2) -> str:
-    if a is None or b is None or b == 0:
-        return "–"
-    return f"{a / b:.{digits}f}"
-
-
-def _alt_cells(r: dict[str, Any], mode: str) -> tuple[str, str]:
-    alt = r.get(mode)
-    if alt is None:
-        return "–", "–"
-    if "median" in alt:
-        return ms(alt["median"]), ratio(alt["median"], r["median"]["e2e"], 1)
-    return ("skipped" if "skipped" in alt else "failed"), "–"
-
-
-def _peak(mem: dict[str, Any] | None, name: str) -> int | None:
-    """The solve's own peak over the parsed body, or the two-process difference when the
-    kernel would not reset the high-water mark; None when memory was not measured."""
-    if not mem:
-        return None
-    value: int = mem.get(name + "_peak", mem[name + "_over_baseline"])
-    return value
-
-
-def main_table(results: list[dict[str, Any]]) -> str:
-    head = ["instance", "size", "e2e HTTP", *ALL_PHASES, "HTTP & rest", "floor",
-            "e2e/floor", "(cert+sv)/solve", "peak MiB", "peak/input",
-            "linprog", "linprog/e2e", "networkx", "networkx/e2e"]
-    lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
-    for r in results:
-        if "median" not in r:
-            lines.append(f"| {r['key']} | " + " | ".join(
-                ["error: " + "; ".join(r["errors"])] + [""] * (len(head) - 2)) + " |")
-            continue
-        med, paired = r["median"], r["paired"]
-        peak = _peak(r.get("memory"), "service")
-        lp, lp_r = _alt_cells(r, "linprog")
-        nx_, nx_r = _alt_cells(r, "networkx")
-        cells = [r["key"], f"{r['size']:,} {r['unit']}", ms(med["e2e"]),
-                 *(ms(med[k]) for k in ALL_PHASES), ms(paired["rest"]), ms(med["floor"]),
-                 f"{paired['e2e_floor']:.2f}", f"{paired['check_solve']:.2f}",
-                 f"{max(peak, 0) / 2**20:,.0f}" if peak is not None else "–",
-                 ratio(peak, r["input_bytes"], 1) if peak is not None else "–",
-                 lp, lp_r, nx_, nx_r]
-        lines.append("| " + " | ".join(cells) + " |")
-    return "\n".join(lines)
-
-
-def detail_table(results: list[dict[str, Any]]) -> str:
-    head = ["instance", "body MB", "floor parse", "floor arrays", "floor call",
-            "service solve / floor call", "input arrays MiB", "peak over baseline MiB",
-            "floor peak MiB",
-            "rounds", "objective", "checks"]
-    lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
-    for r in results:
-        if "median" not in r:
-            continue
-        med, mem = r["median"], r.get("memory", {})
-        fp = _peak(mem, "floor")
-        over = mem.get("service_over_baseline")
-        checks = "; ".join(r["errors"]) or "objective = floor's, answers identical"
-        lines.append("| " + " | ".join([
-            r["key"], f"{r['body_bytes'] / 1e6:.1f}", ms(med["floor_parse"]),
-            ms(med["floor_arrays"]), ms(med["floor_call"]),
-            ratio(med["solve"], med["floor_call"]), f"{r['input_bytes'] / 2**20:,.1f}",
-            f"{max(over, 0) / 2**20:,.0f}" if over is not None else "–",
-            f"{max(fp, 0) / 2**20:,.0f}" if fp is not None else "–", str(r["repeats"]),
-            str(r["objective"]), checks]) + " |")
-    return "\n".join(lines)
-
-
-GROWTH_COLUMNS = ("e2e", *ALL_PHASES, "floor", "floor_call")
-
-
-def growth(results: list[dict[str, Any]]) -> dict[str, dict[str, float]]:
-    """Slope of log(time) against log(size) per phase, over the A and D series."""
-    out: dict[str, dict[str, float]] = {}
-    for fam in ("A", "D"):
-        pts = [r for r in results if r["family"] == fam and r["series"] and "median" in r]
-        if len(pts) < 2:
-            continue
-        x = np.log([r["size"] for r in pts])
-        out[fam] = {}
-        for k in GROWTH_COLUMNS:
-            y = np.log([max(r["median"][k], 1e-6) for r in pts])
-            out[fam][k] = float(np.polyfit(x, y, 1)[0])
-    return out
-
-
-def growth_table(g: dict[str, dict[str, float]], results: list[dict[str, Any]]) -> str:
-    fams = [f for f in ("A", "D") if f in g]
-    if not fams:
-        return "(growth needs at least two sizes of A or D)"
-    def span(f: str) -> str:
-        sizes = [r["size"] for r in results if r["family"] == f and r["series"]
-                 and "median" in r]
-        unit = "cells" if f == "A" else "arcs"
-        return f"{f}: time ∝ {unit}^k ({min(sizes):,}–{max(sizes):,})"
-    lines = ["| phase | " + " | ".join(span(f) for f in fams) + " |",
-             "|---|" + "---|" * len(fams)]
-    for k in GROWTH_COLUMNS:
-        lines.append(f"| {k} | " + " | ".join(f"{g[f][k]:.2f}" for f in fams) + " |")
-    return "\n".join(lines)
-
-
-def bars(results: list[dict[str, Any]], tput: dict[str, Any] | None) -> str:
-    """Issue 3's bars, instance by instance: PASS or FAIL with the measured value."""
-    rows: list[tuple[str, str, str, bool]] = []
-    for r in results:
-        if "median" not in r:
-            continue
-        med, paired = r["median"], r["paired"]
-        e2e_floor = paired["e2e_floor"]
-        limit = 1.5 if r["family"] in "ABC" else 2.0
-        rows.append((r["key"], f"e2e/floor ≤ {limit}", f"{e2e_floor:.2f}",
-                     e2e_floor <= limit))
-        share = paired["check_solve"]
-        rows.append((r["key"], "(certify+self_verify)/solve ≤ 0.30", f"{share:.2f}",
-                     share <= 0.30))
-        lp = r.get("linprog", {})
-        if "median" in lp:
-            speedup = lp["median"] / med["e2e"]
-            rows.append((r["key"], "linprog/e2e ≥ 10", f"{speedup:.1f}", speedup >= 10))
-        peak = _peak(r.get("memory"), "service")
-        if r["family"] in "AD" and peak is not None:
-            m = peak / r["input_bytes"]
-            rows.append((r["key"], "peak/input arrays ≤ 3", f"{m:.1f}", m <= 3))
-    if tput and "ratio" in tput:
-        rows.append(("10x10", "solve/hello throughput ≥ 0.50", f"{tput['ratio']:.2f}",
-                     tput["ratio"] >= 0.5))
-    lines = ["| instance | bar | measured | |", "|---|---|---|---|"]
-    lines += [f"| {k} | {b} | {v} | {'PASS' if ok else '**FAIL**'} |" for k, b, v, ok in rows]
-    return "\n".join(lines)
-
-
-def _time_tick(seconds: float, _pos: int) -> str:
-    """Log-axis ticks in plain units (10 ms, 1 s) instead of powers of ten."""
-    if seconds >= 1:
-        return f"{seconds:g} s"
-    return f"{seconds * 1000:g} ms"
-
-
-def plot(results: list[dict[str, Any]], path: Path) -> bool:
-    try:
-        import matplotlib
-    except ImportError:
-        log("matplotlib missing (pip install -e '.[bench]'): no plot")
-        return False
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-    from matplotlib.ticker import FuncFormatter, NullFormatter
-
-    fams = [(f, t, lim) for f, t, lim in
-            (("A", "A: dense n×n assignment", 1.5), ("D", "D: ticket routing", 2.0))
-            if any(r["family"] == f and r["series"] and "median" in r for r in results)]
-    if not fams:
-        return False
-    fig, axes = plt.subplots(1, len(fams), figsize=(6.2 * len(fams), 4.6), squeeze=False)
-    for ax, (fam, title, limit) in zip(axes[0], fams, strict=True):
-        pts = sorted((r for r in results if r["family"] == fam and r["series"]
-                      and "median" in r), key=lambda r: r["size"])
-        x = np.array([r["size"] for r in pts], float)
-        e2e = np.array([r["median"]["e2e"] for r in pts])
-        floor = np.array([r["median"]["floor"] for r in pts])
-        ax.loglog(x, e2e, "o-", color="tab:blue", label="service, end to end over HTTP")
-        ax.loglog(x, floor, "s-", color="tab:green", label="bare floor (parse+arrays+call)")
-        ax.loglog(x, limit * floor, ":", color="tab:green", alpha=0.7,
-                  label=f"{limit}× floor (the bar)")
-        ax.loglog(x, [r["median"]["solve"] for r in pts], "^--", color="tab:orange",
-                  alpha=0.8, label="service: solve phase")
-        if fam == "D":
-            extra = [r for r in results if r["family"] == "D" and not r["series"]
-                     and "median" in r]
-            for r in extra:
-                ax.loglog([r["size"]], [r["median"]["e2e"]], "D", color="tab:purple",
-                          label=f"{r['key']}, end to end")
-        if fam == "A":
-            labels = [f"n={round(math.sqrt(v)):,}" for v in x]
-            for xi, yi, lab in zip(x, floor, labels, strict=True):
-                ax.annotate(lab, (xi, yi), textcoords="offset points", xytext=(4, -12),
-                            fontsize=8)
-        ax.set_title(title)
-        ax.set_xlabel("cells (n²)" if fam == "A" else "arcs")
-        ax.set_ylabel("time (median)")
-        ax.yaxis.set_major_formatter(FuncFormatter(_time_tick))
-        ax.yaxis.set_minor_formatter(NullFormatter())
-        ax.grid(True, which="both", alpha=0.3)
-        ax.legend(fontsize=8, loc="upper left")
-    fig.suptitle("certimatch: time against size (log-log)", fontsize=11)
-    fig.tight_layout()
-    fig.savefig(path, dpi=110)
-    plt.close(fig)
-    return True
-
-
-def write_report(out: Path, doc: dict[str, Any]) -> str:
-    m = doc["machine"]
-    results = doc["instances"]
-    tput = doc.get("throughput")
-    parts = [
-        "# certimatch benchmark results",
-        "",
-        f"Run {doc['date']} with `{doc['command']}` ({doc['wall_s'] / 60:.1f} min).",
-        "",
-        f"Machine: {m['cpu']}, {m['cores']} cores, {m['memory_gib']} GiB; {m['os']}; "
-        f"Python {m['python']}, numpy {m['numpy']}, scipy {m['scipy']}, "
-        f"OR-Tools {m['ortools']}, networkx {m['networkx']}, orjson {m['orjson']}, "
-        f"Flask {m['flask']}, gunicorn {m['gunicorn']}, {m['wrk'] or 'no wrk'}. "
-        "Load average (1, 5, 15 min) at the start "
-        + ", ".join(f"{v:.1f}" for v in doc["load_start"]) + ", at the end "
-        + ", ".join(f"{v:.1f}" for v in doc["load_end"])
-        + f": the machine is shared, so {m['cores']} cores may not all be ours.",
-        "",
-        "Times in milliseconds, medians of the rounds given below; tests/perf/README.md "
-        "explains every column.",
-        "",
-        main_table(results),
-        "",
-        "## Floor, memory and checks",
-        "",
-        detail_table(results),
-        "",
-        "## Throughput, 10×10 solve against hello world",
-        "",
-    ]
-    if tput and "ratio" in tput:
-        parts += [f"wrk {tput['wrk']} on loopback, {WRK_ROUNDS} alternating runs each "
-                  f"({len(tput['solve'])} and {len(tput['hello'])} succeeded), "
-                  f"median: solve **{tput['solve_rps']:,.0f} req/s**, hello world "
-                  f"**{tput['hello_rps']:,.0f} req/s**, ratio **{tput['ratio']:.2f}**."]
-        phases = tput["phases"]
-        parts += ["", f"The 10×10 solve in-process (median of {SMALL_PHASE_RUNS} runs, "
-                  "ms): " + ", ".join(f"{k} {phases[k] * 1000:.3f}" for k in ALL_PHASES)
-                  + f"; total {sum(phases.values()) * 1000:.2f} ms. At the measured rates "
-                  f"one request costs the 2 workers about {2000 / tput['solve_rps']:.2f} ms "
-                  f"(solve) and {2000 / tput['hello_rps']:.2f} ms (hello world) of a core "
-                  "each, wrk sharing the cores."]
-        booted, start = tput["workers_booted"], tput["worker_start_s"]
-        parts += ["", f"Workers booted during the wrk runs (max_requests recycling): solve "
-                  f"{booted['solve']}, hello world {booted['hello']}. A fresh interpreter "
-                  f"takes {start['solve']:.2f} s to import the service and create its app, "
-                  f"{start['hello']:.2f} s for the hello-world app."]
-        bad = [r for k in ("solve", "hello") for r in tput[k]
-               if r["non_2xx"] or r["socket_errors"]]
-        if bad:
-            parts.append(f"wrk reported errors: {bad}")
-        if tput["errors"]:
-            parts.append("Failed wrk runs (left out of the medians): "
-                         + "; ".join(tput["errors"]))
-    else:
-        parts.append(f"not measured: {(tput or {}).get('error', 'skipped')}")
-    parts += ["", "## Growth exponents", "",
-              "Slope of log(median time) against log(size) over the A series (size = "
-              "cells = n², so double it for n) and the scaled D series (size = arcs). 1 is "
-              "linear; phases under a millisecond at the small sizes mostly fit noise.", "",
-              growth_table(doc["growth"], results), "",
-              "## Issue 3's bars", "", bars(results, tput), ""]
-    if doc["notes"]:
-        parts += ["## Notes", "", *(f"- {n}" for n in doc["notes"]), ""]
-    if doc.get("plot"):
-        parts += ["![time against size](scaling.png)", ""]
-    text = "\n".join(parts)
-    (out / "results.md").write_text(text)
-    return text
-
-
 # --------------------------------------------------------------------------- main
 
 
@@ -1079,7 +626,7 @@ def main(argv: list[str] | None = None) -> int:
                      f"({DEFAULT_BODY_LIMIT} bytes) and would get 413.")
     for k, v in env.items():
         os.environ[k] = v       # the in-process runs use the same settings
-    _libs()
+    floors.libs()
     warmed = warm_memory(args.warm_gib)
     if warmed:
         log(f"touched {warmed['gib']:.0f} GiB of memory in {warmed['seconds']:.1f} s")
@@ -1119,13 +666,13 @@ def main(argv: list[str] | None = None) -> int:
         notes.append(f"networkx.network_simplex is skipped above {NETWORKX_MAX_ARCS:,} arcs "
                      "(minutes per run); networkx and slow linprog runs are single runs, "
                      f"each stopped after {ALT_TIMEOUT:.0f} s.")
-    doc["growth"] = growth(results)
-    doc["plot"] = plot(results, out / "scaling.png")
+    doc["growth"] = report.growth(results)
+    doc["plot"] = report.plot(results, out / "scaling.png")
     doc["wall_s"] = time.monotonic() - started
     doc["load_end"] = os.getloadavg()
     (out / "results.json").write_bytes(orjson.dumps(doc, option=orjson.OPT_INDENT_2
                                                     | orjson.OPT_SERIALIZE_NUMPY))
-    print(write_report(out, doc))
+    print(report.write_report(out, doc, WRK_ROUNDS, SMALL_PHASE_RUNS))
     return 0
 
 
