@@ -16,7 +16,9 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from service import __version__
+from service.cli.audit import add_audit
 from service.cli.credentials import TOKEN_ENV, redact_secrets, token_argument
+from service.cli.db import add_db
 from service.cli.demo import _cmd_demo
 from service.cli.files import _delimiter
 from service.cli.helps import MAIN_EPILOG, REPORT_EPILOG, SOLVE_EPILOG, VERIFY_EPILOG
@@ -251,6 +253,9 @@ def _parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
                       help="stop the server after the demo instead of serving on")
     _add_token_options(demo.add_argument_group("token (when CERTIMATCH_TOKENS is set)"))
     demo.set_defaults(handler=_cmd_demo)
+
+    add_db(sub, raw)
+    add_audit(sub, raw)
     return p
 
 

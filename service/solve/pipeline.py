@@ -18,7 +18,7 @@ from marshmallow import ValidationError
 
 from schemas import AnswerSchema, ProblemSchema, VerifyRequestSchema, to_pointers
 from service.check.verify import verify_answer
-from service.errors import CertificateFailure, InvalidProblem
+from service.errors import CertificateFailure, InvalidProblem, ServiceError
 from service.network.build import build_network
 from service.network.model import Network
 from service.settings import Settings
@@ -126,3 +126,19 @@ def verify_body(body: Any, settings: Settings) -> dict[str, Any]:
         data = _load(_verify_schema, body)
         answer = data.pop("answer")
         return verify_answer(build_network(data, settings), answer)
+
+
+def recheck_stored(problem: Any, answer: Any, settings: Settings) -> tuple[bool, str]:
+    """A stored decision's answer re-checked against its stored problem by the independent
+    verifier: (valid, what failed or that it holds). The decision store's audit takes this
+    as its ``Reverify`` (the records room never imports the verifier itself)."""
+    if not isinstance(problem, dict) or not isinstance(answer, dict):
+        return False, "the stored problem and answer must be JSON objects"
+    try:
+        result = verify_body({**problem, "answer": answer}, settings)
+    except ServiceError as e:
+        return False, f"{e.title.lower()}: {e.detail}"
+    failed = [c for c in result["checks"] if not c["passed"]]
+    if result["valid"] and not failed:
+        return True, f"the independent verifier passes all {len(result['checks'])} checks"
+    return False, "; ".join(f"{c['name']}: {c['detail']}" for c in failed) or "not valid"
