@@ -27,6 +27,8 @@ def _data_field() -> fields.Dict:
                        "not read by the solver, handed back in the answer's data"})
 
 
+#: The lists of records, each of which may be sent in the columnar form instead.
+TABLES = ("sources", "sinks", "nodes", "arcs")
 #: The columns of an arc that name ids.
 ARC_ENDS = ("from", "to")
 
@@ -66,16 +68,19 @@ class ArcSchema(Schema):
 
 
 class ProblemSchema(Schema):
-    """A whole problem; exactly one of ``costs`` and ``arcs``."""
+    """A whole problem; exactly one of ``costs`` and ``arcs``.
+
+    ``sources``, ``sinks``, ``nodes`` and ``arcs`` are lists of records, or each an object
+    of equal-length arrays, one per field (the columnar form, :mod:`schemas.columns`)."""
 
     class Meta:
         unknown = RAISE
 
-    sources = RecordList(SourceSchema, required=True)
-    sinks = RecordList(SinkSchema, required=True)
-    nodes = RecordList(NodeSchema)
+    sources = RecordList(SourceSchema, required=True, columnar=True)
+    sinks = RecordList(SinkSchema, required=True, columnar=True)
+    nodes = RecordList(NodeSchema, columnar=True)
     costs = CostMatrix()
-    arcs = RecordList(ArcSchema, references=ARC_ENDS, declared_in=ID_TABLES)
+    arcs = RecordList(ArcSchema, references=ARC_ENDS, declared_in=ID_TABLES, columnar=True)
     objective = fields.String(load_default="min", validate=validate.OneOf(OBJECTIVES))
     unmet_demand = fields.String(load_default="minimize",
                                  validate=validate.OneOf(UNMET_POLICIES))
@@ -91,7 +96,8 @@ class ProblemSchema(Schema):
         if "costs" in given and "arcs" in given:
             raise ValidationError("give either costs or arcs, not both", "arcs")
         if not given & {"costs", "arcs"}:
-            raise ValidationError("give costs (a matrix) or arcs (a list)", "costs")
+            raise ValidationError("give costs (a matrix) or arcs (a list, or an object of "
+                                  "arrays)", "costs")
         if "nodes" in given and "arcs" not in given:
             raise ValidationError("nodes need arcs to reach them", "nodes")
 

@@ -17,7 +17,9 @@ used by the OpenAPI document); :class:`RecordList` derives its columns from that
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import partial
 from itertools import chain, repeat
 from operator import is_not
 from typing import Any
@@ -26,6 +28,7 @@ import numpy as np
 import orjson
 from marshmallow import Schema, ValidationError, fields, missing
 
+from schemas.columns import by_column, split_columns
 from schemas.numbers import (
     MAX_ABS_VALUE,
     MAX_ERRORS_PER_LIST,
@@ -52,9 +55,18 @@ class Table:
     columns: dict[str, Any] = field(default_factory=dict)
     present: dict[str, np.ndarray] = field(default_factory=dict)
     resolved: dict[str, np.ndarray] = field(default_factory=dict)
+    columnar: bool = False          # sent as an object of arrays (schemas.columns)
 
     def __len__(self) -> int:
         return self.length
+
+    def pointer(self, name: str, index: int, key: str, *, whole: bool = False) -> str:
+        """JSON Pointer to field ``key`` of record ``index`` of the table sent as
+        ``/name``, in the form it was sent; ``whole`` points at the record itself, which
+        in the columnar form is its entry of the array ``key``."""
+        if self.columnar:
+            return f"/{name}/{key}/{index}"
+        return f"/{name}/{index}" if whole else f"/{name}/{index}/{key}"
 
 
 def _column_kind(f: fields.Field) -> str:
@@ -84,12 +96,18 @@ class RecordList(fields.Field):
     that order). They are resolved here into ``Table.resolved``: every declared id is a
     non-empty string, so an entry that resolves is one, and the lookup doubles as the check.
     Entries that are strings but no declared id stay -1, for the caller to report.
+
+    ``columnar`` also takes the list as an object of equal-length arrays, one per field
+    (:mod:`schemas.columns`); each array is checked as the column of the records would be,
+    and errors point into the arrays (``/arcs/cost/7`` for ``/arcs/7/cost``).
     """
 
     def __init__(self, row_schema: type[Schema], *, references: tuple[str, ...] = (),
-                 declared_in: tuple[str, ...] = (), **kwargs: Any) -> None:
+                 declared_in: tuple[str, ...] = (), columnar: bool = False,
+                 **kwargs: Any) -> None:
         super().__init__(**kwargs)
         self.row_schema = row_schema
+        self.columnar = columnar
         schema = row_schema()
         self.specs = [(f.data_key or name, _column_kind(f), f)
                       for name, f in schema.fields.items()]
@@ -107,9 +125,12 @@ class RecordList(fields.Field):
         self.declared_in = declared_in
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Table:
-        if not isinstance(value, list):
-            raise ValidationError("must be a list of objects")
         index = self._declared(data) if self.references else None
+        if self.columnar and isinstance(value, dict):
+            return self._from_columns(value, index)
+        if not isinstance(value, list):
+            raise ValidationError("must be a list of objects" + (
+                " or an object of equal-length arrays" if self.columnar else ""))
         rows = value
         n = len(rows)
         errors: dict = {}
@@ -125,64 +146,83 @@ class RecordList(fields.Field):
         counted = 0
         table = Table(n)
         for key, kind, f in self.order:
-            optional = not f.required
-            default = f.load_default
-            if optional and counted == keys:
-                self._absent(table, key, kind, default)
+            if not f.required and counted == keys:
+                self._absent(table, key, kind, f.load_default)
                 continue
             col = first if key == self.order[0][0] else list(map(dict.get, rows, repeat(key)))
-            if kind == "id":
-                table.columns[key] = col
-                if key in self.references and index is not None:
-                    at = _positions(col, index)
-                    if at is not None:
-                        table.resolved[key] = at
-                        if not n or at.min() >= 0:
-                            counted += n
-                            continue
-                bad = check_ids(col)
-                for i in bad:
-                    _add(errors, i, key, "missing" if key not in rows[i]
-                         else "must be a non-empty string")
-                counted += n - len(bad)
-                continue
-            if kind == "object":
-                present, faults = _objects(col, f.metadata["max_bytes"])
-                for i, why in faults:
-                    _add(errors, i, key, why)
-                counted += int(np.count_nonzero(present))
-                table.columns[key] = col
-                table.present[key] = present
-                continue
-            if kind == "flag":
-                vals, present, bad = _flags(col, nullable=optional)
-                for i in bad:
-                    _add(errors, i, key, "missing" if key not in rows[i]
-                         else "must be true or false")
-                counted += int(np.count_nonzero(present))
-                table.columns[key] = vals
-                if optional and default is missing:
-                    table.present[key] = present
-                continue
-            bound, minimum = self.bounds[key]
-            vals, present, bad = check_numbers(col, kind, nullable=optional, bound=bound,
-                                               minimum=minimum)
-            for i in bad:
-                _add(errors, i, key, "missing" if key not in rows[i]
-                     else number_detail(kind, bound, minimum))
-            counted += int(np.count_nonzero(present))
-            if default is not missing and not present.all():
-                vals = np.where(present, vals, float(default))
-                present = np.ones(n, bool)
-            table.columns[key] = vals.astype(np.int64, copy=False) if kind == "count" else vals
-            if optional and default is missing:
-                table.present[key] = present
+            counted += self._column(table, key, kind, f, col, index, errors,
+                                    partial(_unsent, rows, key))
         if counted != keys:
             # explicit nulls or unknown keys: look at the keys themselves
             errors = self._unknown_keys(rows, errors)
         if errors:
             raise ValidationError(_cap(errors))
         return table
+
+    def _from_columns(self, value: dict[str, Any], index: dict[str, int] | None) -> Table:
+        """The Table of the columnar form: the arrays taken apart, then the same checks."""
+        n, cols = split_columns(value, ((key, f.required) for key, _, f in self.order))
+        table = Table(n, columnar=True)
+        errors: dict = {}
+        for key, kind, f in self.order:
+            if key in cols:
+                self._column(table, key, kind, f, cols[key], index, errors, _never)
+            else:
+                self._absent(table, key, kind, f.load_default)
+        if errors:
+            raise ValidationError(by_column(_cap(errors)))
+        return table
+
+    def _column(self, table: Table, key: str, kind: str, f: fields.Field, col: list[Any],
+                index: dict[str, int] | None, errors: dict,
+                unsent: Callable[[int], bool]) -> int:
+        """Check the column ``key`` (its entries in record order, None where absent) into
+        ``table``; errors go to ``errors`` by record, ``unsent(i)`` tells an absent key
+        from a null. Returns the count of entries that are not null."""
+        n = table.length
+        optional = not f.required
+        default = f.load_default
+        if kind == "id":
+            table.columns[key] = col
+            if key in self.references and index is not None:
+                at = _positions(col, index)
+                if at is not None:
+                    table.resolved[key] = at
+                    if not n or at.min() >= 0:
+                        return n
+            bad = check_ids(col)
+            for i in bad:
+                _add(errors, i, key, "missing" if unsent(i) else "must be a non-empty string")
+            return n - len(bad)
+        if kind == "object":
+            present, faults = _objects(col, f.metadata["max_bytes"])
+            for i, why in faults:
+                _add(errors, i, key, why)
+            table.columns[key] = col
+            table.present[key] = present
+            return int(np.count_nonzero(present))
+        if kind == "flag":
+            vals, present, bad = _flags(col, nullable=optional)
+            for i in bad:
+                _add(errors, i, key, "missing" if unsent(i) else "must be true or false")
+            table.columns[key] = vals
+            if optional and default is missing:
+                table.present[key] = present
+            return int(np.count_nonzero(present))
+        bound, minimum = self.bounds[key]
+        vals, present, bad = check_numbers(col, kind, nullable=optional, bound=bound,
+                                           minimum=minimum)
+        for i in bad:
+            _add(errors, i, key, "missing" if unsent(i)
+                 else number_detail(kind, bound, minimum))
+        counted = int(np.count_nonzero(present))
+        if default is not missing and not present.all():
+            vals = np.where(present, vals, float(default))
+            present = np.ones(n, bool)
+        table.columns[key] = vals.astype(np.int64, copy=False) if kind == "count" else vals
+        if optional and default is missing:
+            table.present[key] = present
+        return counted
 
     def _declared(self, data: Any) -> dict[str, int] | None:
         """Position of each id the document declares; None unless all are readable (then
@@ -192,7 +232,7 @@ class RecordList(fields.Field):
         lists = [data[name] for name in self.declared_in if data.get(name) is not None]
         try:
             ids: list[Any] = list(chain.from_iterable(
-                map(dict.get, rows, repeat("id")) for rows in lists))
+                _ids_of(rows) for rows in lists))
         except TypeError:               # a declaring list that is no list of objects
             return None
         if check_ids(ids):
@@ -224,6 +264,27 @@ class RecordList(fields.Field):
             table.present[key] = np.zeros(table.length, bool)
         else:
             table.columns[key] = np.full(table.length, default, dtype)
+
+
+def _ids_of(rows: Any) -> Any:
+    """The ids a declaring list holds, in either form; TypeError when it cannot say."""
+    if type(rows) is dict:
+        ids = rows.get("id")
+        if type(ids) is not list or any(
+                type(col) is list and len(col) != len(ids) for col in rows.values()):
+            raise TypeError("no array of ids of the table's length")
+        return ids
+    return map(dict.get, rows, repeat("id"))
+
+
+def _unsent(rows: list[dict[str, Any]], key: str, index: int) -> bool:
+    """Whether record ``index`` lacks ``key`` (rather than holding null)."""
+    return key not in rows[index]
+
+
+def _never(index: int) -> bool:
+    """No entry of an array is absent: a record without a field has null there."""
+    return False
 
 
 def _flags(values: list[Any], *, nullable: bool) -> tuple[np.ndarray, np.ndarray, list[int]]:

@@ -182,6 +182,8 @@ def problem_size(body: Any) -> tuple[str, int] | None:
     arcs, costs = body.get("arcs"), body.get("costs")
     if isinstance(arcs, list):
         return "arcs", len(arcs)
+    if isinstance(arcs, dict) and isinstance(arcs.get("from"), list):   # the columnar form
+        return "arcs", len(arcs["from"])
     if isinstance(costs, list) and costs and isinstance(costs[0], list):
         # The matrix was checked rectangular before it was solved (MAX_CELLS counts the same).
         return "cells", len(costs) * len(costs[0])

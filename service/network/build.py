@@ -174,7 +174,7 @@ def _check_ids(ids: list[str], groups: list, max_len: int) -> list[dict[str, str
         if table is None:
             continue
         for i, id_ in enumerate(table.columns["id"]):
-            pointer = f"/{name}/{i}/id"
+            pointer = table.pointer(name, i, "id")
             errors.extend({"pointer": pointer, "detail": d} for d in _id_faults(id_, max_len))
             if id_ in first:
                 errors.append({"pointer": pointer,
@@ -262,10 +262,11 @@ def _arc_ends(arcs: Any, settings: Settings,
     for key in ARC_ENDS:
         names, idx = arcs.columns[key], arcs.resolved[key]
         for i in np.flatnonzero(idx < 0)[:50].tolist():
-            errors.append({"pointer": f"/arcs/{i}/{key}", "detail": f"unknown id {names[i]!r}"})
+            errors.append({"pointer": arcs.pointer("arcs", i, key),
+                           "detail": f"unknown id {names[i]!r}"})
     tail, head = (arcs.resolved[key] for key in ARC_ENDS)
     loops = np.flatnonzero((tail == head) & (tail >= 0))
     for i in loops[:50].tolist():
-        errors.append({"pointer": f"/arcs/{i}",
+        errors.append({"pointer": arcs.pointer("arcs", i, "to", whole=True),
                        "detail": f"arc from {arcs.columns['from'][i]!r} to itself"})
     return tail, head

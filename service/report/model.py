@@ -9,6 +9,8 @@ from typing import Any
 
 import numpy as np
 
+from schemas.columns import as_records
+from schemas.problem import TABLES
 from service.report.style import _count, _ids
 
 # --- the model: the request and answer as arrays ------------------------------------------
@@ -64,6 +66,8 @@ class _Model:
 
 
 def _model(body: Mapping[str, Any], verdict: Mapping[str, Any]) -> _Model:
+    # a report draws a small problem: a table sent as arrays is read as records
+    body = {**body, **{name: as_records(body[name]) for name in TABLES if name in body}}
     answer = body["answer"]
     sources, nodes, sinks = _ids(body["sources"]), _ids(body.get("nodes") or []), _ids(
         body["sinks"])

@@ -366,6 +366,7 @@ def test_a_bad_metrics_switch_stops_the_app(monkeypatch, raw, message):
 @pytest.mark.parametrize(("body", "size"), [
     ({"costs": [[1, 2, 3], [4, 5, 6]]}, ("cells", 6)),
     ({"arcs": [{}, {}, {}]}, ("arcs", 3)),
+    ({"arcs": {"from": ["a", "b"], "to": ["b", "a"], "cost": [1, 1]}}, ("arcs", 2)),
     ({"costs": []}, None),
     ([1, 2], None),
 ])

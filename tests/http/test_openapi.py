@@ -38,7 +38,7 @@ from schemas.answer import SHAPES, SOLVERS
 from schemas.fields import Number, NumberMap
 from schemas.numbers import MAX_ABS_VALUE, MAX_ANSWER_VALUE
 from schemas.pointers import iter_wire_keys
-from schemas.problem import OBJECTIVES, UNMET_POLICIES
+from schemas.problem import OBJECTIVES, UNMET_POLICIES, ProblemSchema
 from schemas.tables import RecordList
 from service.app import create_app
 from service.http import observe
@@ -339,6 +339,23 @@ def test_check_names_are_the_verifier_checks() -> None:
     assert set(enum) == names
 
 
+@pytest.mark.parametrize("key", ["sources", "sinks", "nodes", "arcs"])
+def test_each_table_is_records_or_columns_of_the_same_fields(key: str) -> None:
+    # the columnar form has one array per field of the record, each entry that field's
+    # schema; an optional array may be null (all absent), a required one may not
+    field = ProblemSchema().fields[key]
+    assert isinstance(field, RecordList) and field.columnar
+    records, columns = SPEC["components"]["schemas"]["Problem"]["properties"][key]["oneOf"]
+    row = field.row_schema.__name__.removesuffix("Schema")
+    assert records == {"type": "array", "items": {"$ref": f"#/components/schemas/{row}"}}
+    assert columns["additionalProperties"] is False
+    assert columns["properties"] == {
+        k: {"type": "array" if f.required else ["array", "null"],
+            "items": {"$ref": f"#/components/schemas/{row}/properties/{k}"}}
+        for k, _, f in field.specs}
+    assert sorted(columns["required"]) == sorted(k for k, _, f in field.specs if f.required)
+
+
 def test_verify_request_is_a_problem_plus_answer() -> None:
     components = SPEC["components"]["schemas"]
     problem, request = components["Problem"], components["VerifyRequest"]
@@ -532,6 +549,26 @@ SPEC_INVALID = {
     "arc with null cost": (ARCS, "/arcs/1/cost", None),
 }
 
+def _columns(records: list[dict[str, Any]], *keys: str) -> dict[str, list[Any]]:
+    """The columnar form of ``records``: one array per key, null where a record lacks it."""
+    return {k: [r.get(k) for r in records] for k in keys}
+
+
+COLUMNAR_ARCS = _columns(ARCS["arcs"], "from", "to", "cost", "capacity")
+
+SPEC_INVALID.update({
+    "columnar arcs with an unknown array": (ARCS, "/arcs", {**COLUMNAR_ARCS,
+                                                            "colour": ["red"] * 5}),
+    "columnar arcs without costs": (ARCS, "/arcs", {k: v for k, v in COLUMNAR_ARCS.items()
+                                                    if k != "cost"}),
+    "columnar cost as text": (ARCS, "/arcs", {**COLUMNAR_ARCS, "cost": ["2", 1, 1, 3, 7]}),
+    "columnar null in a required array": (ARCS, "/arcs", {**COLUMNAR_ARCS,
+                                                          "to": [None, *COLUMNAR_ARCS["to"][1:]]}),
+    "columnar supply as one number": (TECHNICIANS, "/sources", {"id": ["a", "b"], "supply": 2}),
+    "columnar negative demand": (TECHNICIANS, "/sinks", {"id": ["x", "y", "z"],
+                                                         "demand": [1, -1, 1]}),
+})
+
 SPEC_VALID = {
     "null supply means 1": (TECHNICIANS, "/sources/0/supply", None),
     "whole number written 3.0": (TECHNICIANS, "/sources/0/supply", 3.0),
@@ -547,6 +584,13 @@ SPEC_VALID = {
     "null capacity is unbounded": (ARCS, "/arcs/0/capacity", None),
     "zero capacity": (ARCS, "/arcs/0/capacity", 0),
     "no arcs at all": (ARCS, "/arcs", []),
+    "columnar arcs": (ARCS, "/arcs", COLUMNAR_ARCS),
+    "columnar arcs without capacities": (ARCS, "/arcs", {**COLUMNAR_ARCS, "capacity": None}),
+    "columnar sources with null supplies": (TECHNICIANS, "/sources", {
+        "id": ["tech-north", "tech-south"], "supply": [None, 2]}),
+    "columnar sinks, ids only": (TECHNICIANS, "/sinks", {
+        "id": ["ticket-101", "ticket-102", "ticket-103"]}),
+    "no arcs at all, columnar": (ARCS, "/arcs", {"from": [], "to": [], "cost": []}),
     "an empty day, no tickets": ({"sources": [{"id": "tech-north"}], "sinks": [],
                                   "costs": [[]]}, "/objective", "min"),
     "an empty day, no technicians": ({"sources": [], "sinks": [{"id": "ticket-101"}],
