@@ -223,7 +223,15 @@ CATALOGUE: list[Bad] = [
     invalid("empty-object", b"{}", "/sources", "/sinks", "/costs"),
     invalid("missing-sources", without(G, "sources"), "/sources"),
     invalid("sources-null", with_(G, sources=None), "/sources"),
-    invalid("sources-an-object", with_(G, sources={"id": "r0"}), "/sources"),
+    invalid("sources-a-string", with_(G, sources="r0"), "/sources"),
+    # an object is the columnar form (issue 15), whose arrays must be arrays
+    invalid("sources-one-record-not-a-list", with_(G, sources={"id": "r0"}), "/sources/id"),
+    invalid("sources-columns-of-unequal-length",
+            with_(G, sources={"id": ["r0", "r1", "r2"], "supply": [1, 1]}), "/sources/supply"),
+    invalid("arcs-columns-with-a-bad-cost",
+            dumps({"sources": {"id": ["r0"]}, "sinks": {"id": ["t0"]},
+                   "arcs": {"from": ["r0", "r0"], "to": ["t0", "t0"], "cost": [1, "x"]}}),
+            "/arcs/cost/1"),
     # no sources or no sinks is an empty day (200); a matrix that disagrees is not
     invalid("no-sources-but-matrix-rows", with_(G, sources=[]), "/costs"),
     invalid("no-sinks-but-matrix-columns", with_(G, sinks=[]), "/costs/0"),
