@@ -283,3 +283,18 @@ def test_arc_ends_resolve_against_ids_sent_as_arrays():
     body["arcs"]["from"][0] = None
     assert errors_of(body) == [("/sources/id/1", "must be a non-empty string"),
                                ("/arcs/from/0", "must be a non-empty string")]
+
+
+def test_a_data_array_travels_like_the_records_data():
+    # any further field of a record is one more array: here the free-form `data` objects
+    body = instance("transshipment", 4)
+    body["sources"][0]["data"] = {"van": "v-12", "skills": ["gas", "oven"]}
+    body["sinks"][-1]["data"] = {"floor": 3}
+    record = answer_or_errors(body)
+    assert isinstance(record, bytes) and b'"floor":3' in record
+    assert answer_or_errors(columnar(body)) == record
+    body["nodes"][0]["data"] = {"note": "x" * 5000}          # over the 4096-byte bound
+    body["sinks"][0]["data"] = ["not", "an", "object"]
+    record = answer_or_errors(body)
+    assert {p for p, _ in record[1]} == {"/nodes/0/data", "/sinks/0/data"}
+    assert answer_or_errors(columnar(body)) == mapped(record)
