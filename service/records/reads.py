@@ -120,6 +120,29 @@ class LogReader:
             rows = conn.execute(query.limit(limit)).all()
         return [row_decision(r) for r in rows]
 
+    def newest(self, before: int | None = None, limit: int = 50, caller: str | None = None,
+               since: str | None = None, until: str | None = None
+               ) -> list[tuple[Decision, bytes | None]]:
+        """Decisions newest first (descending ``log_index``) with their stored answers
+        (None when not kept): those below the log index ``before``, of one caller, recorded
+        at or after ``since`` and before ``until`` (RFC 3339 text), when given. For the
+        audit page; ValueError for a limit outside 1..MAX_PAGE."""
+        if not 1 <= limit <= MAX_PAGE:
+            raise ValueError(f"limit must be a whole number from 1 to {MAX_PAGE}")
+        c = decision_records.c
+        query = select(*decision_columns(), c.answer).order_by(c.log_index.desc())
+        if before is not None:
+            query = query.where(c.log_index < before)
+        if caller is not None:
+            query = query.where(c.caller == caller)
+        if since is not None:
+            query = query.where(c.recorded_at >= since)
+        if until is not None:
+            query = query.where(c.recorded_at < until)
+        with self._transaction() as conn:
+            rows = conn.execute(query.limit(limit)).all()
+        return [(row_decision(r), None if r.answer is None else bytes(r.answer)) for r in rows]
+
     def inclusion_proof(self, log_index: int, size: int) -> list[bytes]:
         """RFC 9162 inclusion proof of the leaf at ``log_index`` in the tree of ``size``."""
         with self._transaction() as conn:

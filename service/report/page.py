@@ -11,6 +11,7 @@ from service import __version__
 from service.report.model import _Model, _model
 from service.report.picture import _picture, _too_large_svg
 from service.report.proof import _checks, _failed, _proof_items, _verdict_sentence
+from service.report.record import record_failed, record_section
 from service.report.style import FORMATS, TABLE_MAX_ROWS, _esc, _num, _plural
 from service.settings import Settings
 from service.solve.pipeline import verify_body
@@ -220,10 +221,20 @@ def render_svg(body: Mapping[str, Any], verdict: Mapping[str, Any]) -> str:
 
 
 def render_html(body: Mapping[str, Any], verdict: Mapping[str, Any],
-                source: str | None = None) -> str:
-    """The whole audit report as one HTML page; ``source`` names the input for the header."""
+                source: str | None = None, record: Mapping[str, Any] | None = None) -> str:
+    """The whole audit report as one HTML page; ``source`` names the input for the header.
+
+    ``record`` (a decision read from the log: ``{"decision", "checks"}``) adds the log's
+    verdict; the page then says VALID only when the verifier and every log check agree.
+    """
     m = _model(body, verdict)
-    word = "VALID" if m.valid else "NOT VALID"
+    damaged = record_failed(record) if record is not None else []
+    whole = m.valid and not damaged
+    word = "VALID" if whole else "NOT VALID"
+    sentence = _verdict_sentence(m)
+    if damaged:
+        sentence = (f"The decision record fails the log's checks ({', '.join(damaged)}): "
+                    f"it is not the record the service wrote. {sentence}")
     svg, note = _picture(m, standalone=False)
     parts = [
         "<!DOCTYPE html>",
@@ -233,8 +244,9 @@ def render_html(body: Mapping[str, Any], verdict: Mapping[str, Any],
         "<header><h1>Audit report</h1>",
         '<p class="sub">least-cost allocation and its certificate of optimality'
         + (f" \u00b7 input {_esc(source)}" if source else "") + "</p></header>",
-        f'<section class="verdict {"valid" if m.valid else "invalid"}">'
-        f'<p class="word">{word}</p><p>{_esc(_verdict_sentence(m))}</p></section>',
+        f'<section class="verdict {"valid" if whole else "invalid"}">'
+        f'<p class="word">{word}</p><p>{_esc(sentence)}</p></section>',
+        record_section(record) if record is not None else "",
         '<div class="cards"><div class="card"><h3>Problem</h3>'
         + _dl(_problem_facts(m)) + '</div><div class="card"><h3>Answer</h3>'
         + _dl(_answer_facts(m)) + "</div></div>",
@@ -293,20 +305,44 @@ def render_html(body: Mapping[str, Any], verdict: Mapping[str, Any],
     return "\n".join(parts)
 
 
+def render_record_only(record: Mapping[str, Any], note: str) -> str:
+    """The page of a logged decision whose problem and answer cannot be shown (``note``
+    says why): its record and the log's checks, and no verdict on the answer."""
+    damaged = record_failed(record)
+    word = "NOT VALID" if damaged else "NOT CHECKED"
+    sentence = (f"The decision record fails the log's checks ({', '.join(damaged)}): it is "
+                "not the record the service wrote. " if damaged else
+                "The decision record passes the log's checks, but its answer cannot be "
+                "re-checked here. ") + note
+    return "\n".join([
+        "<!DOCTYPE html>",
+        '<html lang="en"><head><meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
+        f"<title>Audit report \u2014 {word}</title><style>{_CSS}</style></head><body><main>",
+        "<header><h1>Audit report</h1></header>",
+        f'<section class="verdict invalid"><p class="word">{word}</p>'
+        f"<p>{_esc(sentence)}</p></section>",
+        record_section(record),
+        f"<footer>certimatch {_esc(__version__)}.</footer></main></body></html>\n"])
+
+
 def render(body: Mapping[str, Any], verdict: Mapping[str, Any], fmt: str = "html",
-           source: str | None = None) -> str:
+           source: str | None = None, record: Mapping[str, Any] | None = None) -> str:
     if fmt == "svg":
         return render_svg(body, verdict)
     if fmt == "html":
-        return render_html(body, verdict, source)
+        return render_html(body, verdict, source, record)
     raise ValueError(f"format must be one of {', '.join(FORMATS)}, not {fmt!r}")
 
 
 def build_report(body: Any, settings: Settings, fmt: str = "html",
-                 source: str | None = None) -> tuple[str, bool]:
+                 source: str | None = None, record: Mapping[str, Any] | None = None
+                 ) -> tuple[str, bool]:
     """(document, valid) for a /v1/verify body; ServiceError when the body is not one.
 
-    The verdict is computed here by the independent verifier, never read from the body.
+    The verdict is computed here by the independent verifier, never read from the body;
+    with ``record`` (see :func:`render_html`) valid means the log's checks hold too.
     """
     verdict = verify_body(body, settings)
-    return render(body, verdict, fmt, source), verdict.get("valid") is True
+    valid = verdict.get("valid") is True and not (record and record_failed(record))
+    return render(body, verdict, fmt, source, record), valid
