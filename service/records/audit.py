@@ -125,7 +125,7 @@ def check(lines: Iterable[bytes | str], reverify: Reverify | None = None,
     frontier = _header(next(numbered, (1, b"")), report)
     if frontier is None:
         return report
-    expected = frontier.size
+    start = expected = frontier.size
     checkpoint = None
     for number, line in numbered:
         if checkpoint is not None:
@@ -156,7 +156,7 @@ def check(lines: Iterable[bytes | str], reverify: Reverify | None = None,
         frontier.append(leaf)
         report.records += 1
         report.findings += [f"{where}: {f}" for f in _bodies(obj, decision, reverify, report)]
-    _close(checkpoint, frontier, report, public_key)
+    _close(checkpoint, frontier, report, public_key, start)
     return report
 
 
@@ -213,7 +213,7 @@ def _bodies(obj: dict[str, Any], decision: Decision, reverify: Reverify | None,
 
 
 def _close(checkpoint: Any, frontier: Frontier, report: AuditReport,
-           public_key: str | None) -> None:
+           public_key: str | None, start: int) -> None:
     if checkpoint is None:
         report.findings.append("no checkpoint line: the export is truncated")
         return
@@ -227,8 +227,10 @@ def _close(checkpoint: Any, frontier: Frontier, report: AuditReport,
         report.findings.append(f"checkpoint: {problem}")
     if frontier.size != report.size:
         report.findings.append(
-            f"the export holds records up to log index {frontier.size - 1} but the "
-            f"checkpoint covers {report.size} records: records were dropped or added")
+            f"the export holds {frontier.size - start} records"
+            + (f" after the {start} its header stands for" if start else "")
+            + f" but the checkpoint covers {report.size} records: records were dropped or "
+            "added")
     elif frontier.root().hex() != report.root_sha256:
         report.findings.append(
             "the records do not make up the signed tree: a record was changed together "
