@@ -63,6 +63,19 @@ class CutSchema(Schema):
     capacity = Number(kind="count", load_default=0, bound=MAX_ANSWER_VALUE)
 
 
+class PriceRowSchema(Schema):
+    """What forcing or forbidding one allowed pair costs (README, "Override prices")."""
+
+    from_ = fields.String(required=True, data_key="from")
+    to = fields.String(required=True)
+    flow = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
+    force_delta = fields.Float(metadata={"bound": MAX_ANSWER_VALUE, "description":
+                               "least extra cost of a plan with a unit on the pair; null: none"})
+    forbid_delta = fields.Float(metadata={"bound": MAX_ANSWER_VALUE, "description":
+                                "least extra cost of a plan with nothing on it; null: none"})
+    arc = fields.Integer(metadata={"description": "index into the request's arcs"})
+
+
 class CertificateSchema(Schema):
     """Dual potentials and the cut; see README, 'The certificate'."""
 
@@ -72,6 +85,9 @@ class CertificateSchema(Schema):
     hard_shortfall = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
     cut = fields.Nested(CutSchema, required=True)
     dual_objective = Number(required=True, bound=MAX_ANSWER_VALUE)
+    prices = fields.Dict(metadata={"description": "the proof of the override prices: "
+                                   "distance rows and trees, reroutes (README, 'The "
+                                   "certificate'); checked when the answer has prices"})
 
 
 class AnswerSchema(Schema):
@@ -86,6 +102,8 @@ class AnswerSchema(Schema):
     unmet = RecordList(UnmetSchema, required=True)
     unused = RecordList(AmountSchema, required=True)
     certificate = fields.Nested(CertificateSchema, required=True)
+    prices = RecordList(PriceRowSchema, metadata={
+        "description": "one row per allowed pair, when the request asked for prices"})
     data = fields.Dict(keys=fields.String(), values=fields.Dict(), metadata={
         "description": "the data objects of the request's sources, nodes and sinks by id; "
                        "checked when present"})

@@ -7,7 +7,7 @@ from typing import Any
 
 from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
 
-from schemas.fields import Number
+from schemas.fields import Number, StrictBoolean
 from schemas.tables import CostMatrix, RecordList
 
 OBJECTIVES = ("min", "max")
@@ -84,6 +84,8 @@ class ProblemSchema(Schema):
     objective = fields.String(load_default="min", validate=validate.OneOf(OBJECTIVES))
     unmet_demand = fields.String(load_default="minimize",
                                  validate=validate.OneOf(UNMET_POLICIES))
+    prices = StrictBoolean(load_default=False, metadata={
+        "description": "also price overriding every allowed pair (README, 'Override prices')"})
     time_limit_s = Number(bound=MAX_TIME_LIMIT, validate=validate.Range(
         min=0, min_inclusive=False, error="must be more than 0 seconds"),
         metadata={"description": "seconds this request may compute, capped by the server"})

@@ -153,6 +153,9 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("MAX_ARCS", 2_000_000, "largest number of arcs in an arc list", _whole),
     Setting("MAX_NODES", 1_000_000, "largest number of sources + sinks + nodes", _whole),
     Setting("MAX_ID_LENGTH", 200, "longest id, in characters", _whole),
+    Setting("MAX_PRICES_WORK", 100_000_000,
+            "most work one request's override prices may take: Dijkstra runs x (nodes + "
+            "residual arcs); more gets 413 naming /prices", _whole),
     Setting("METRICS_ENABLED", True,
             "serve GET /metrics (Prometheus text format) and count requests and solves: "
             "true or false", _flag),
@@ -208,6 +211,7 @@ class Settings:
     max_arcs: int = _default("MAX_ARCS")
     max_nodes: int = _default("MAX_NODES")
     max_id_length: int = _default("MAX_ID_LENGTH")
+    max_prices_work: int = _default("MAX_PRICES_WORK")
     metrics_enabled: bool = _default("METRICS_ENABLED")
     tokens: tuple[str, ...] = field(default=_default("TOKENS"), repr=False)
     tokens_file: str = _default("TOKENS_FILE")

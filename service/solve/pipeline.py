@@ -26,6 +26,7 @@ from service.solve import dispatch
 from service.solve.answer import build_answer
 from service.solve.certificate import certify
 from service.solve.deadline import deadline
+from service.solve.prices_answer import add_prices
 
 log = logging.getLogger(__name__)
 
@@ -54,6 +55,9 @@ def solve_body(body: Any, settings: Settings,
         solution = clock.run("solve", dispatch.solve, net)
         cert = clock.run("certify", certify, net, solution)
         answer = clock.run("answer", build_answer, net, solution, cert)
+        if data.get("prices"):
+            clock.run("prices", add_prices, net, solution, cert, answer,
+                      settings.max_prices_work)
         clock.run("self_verify", self_check, net, answer)
     return answer
 
