@@ -69,9 +69,9 @@ class PriceRowSchema(Schema):
     from_ = fields.String(required=True, data_key="from")
     to = fields.String(required=True)
     flow = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
-    force_delta = fields.Float(metadata={"bound": MAX_ANSWER_VALUE, "description":
+    force_delta = fields.Float(metadata={"bound": MAX_ANSWER_VALUE, "minimum": 0, "description":
                                "least extra cost of a plan with a unit on the pair; null: none"})
-    forbid_delta = fields.Float(metadata={"bound": MAX_ANSWER_VALUE, "description":
+    forbid_delta = fields.Float(metadata={"bound": MAX_ANSWER_VALUE, "minimum": 0, "description":
                                 "least extra cost of a plan with nothing on it; null: none"})
     arc = fields.Integer(metadata={"description": "index into the request's arcs"})
 

@@ -171,7 +171,7 @@ def test_the_table_is_the_settings_classes():
 def test_limits_are_all_whole_number_settings():
     # Guards the parametrisation above: it must not silently lose the limits.
     assert SETTING_NAMES == ["MAX_BODY_BYTES", "MAX_CELLS", "MAX_ARCS", "MAX_NODES",
-                             "MAX_ID_LENGTH", "MAX_TIME_LIMIT_S"]
+                             "MAX_ID_LENGTH", "MAX_PRICES_WORK", "MAX_TIME_LIMIT_S"]
 
 
 @pytest.mark.parametrize(("raw", "expected"), [("true", True), ("FALSE", False),
