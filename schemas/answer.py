@@ -13,6 +13,9 @@ SHAPES = ("assignment", "transportation", "transshipment")
 SOLVERS = ("lapjv", "linear_sum_assignment", "min_weight_full_bipartite_matching",
            "network_simplex", "min_cost_flow")
 
+#: Why an unmet sink waits (README, "Why a sink waits").
+REASONS = ("no-eligible-source", "capacity", "penalty")
+
 
 class AllocationRowSchema(Schema):
     """Units sent along one arc; ``cost`` is flow x the arc's cost as given."""
@@ -38,12 +41,19 @@ class UnmetSchema(Schema):
     amount = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
     hard = fields.Boolean(metadata={"description": "true when the sink has no penalty; "
                                                    "checked when present"})
+    reason = fields.String(validate=validate.OneOf(REASONS), metadata={
+        "description": "why the sink waits (README, 'Why a sink waits'); checked when present"})
+    reduced_cost = fields.Float(metadata={
+        "bound": MAX_ANSWER_VALUE,
+        "description": "with reason penalty: pi(super-source) - pi(sink) - penalty, at least 0 "
+                       "(min form): serving one more unit costs at least this much more"})
 
 
 class UnmetResultSchema(UnmetSchema):
-    """An unmet row as /v1/solve writes it: ``hard`` is always there."""
+    """An unmet row as /v1/solve writes it: ``hard`` and ``reason`` are always there."""
 
     hard = fields.Boolean(required=True)
+    reason = fields.String(required=True, validate=validate.OneOf(REASONS))
 
 
 class VirtualPotentialsSchema(Schema):

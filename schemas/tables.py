@@ -191,9 +191,16 @@ class RecordList(fields.Field):
                     if not n or at.min() >= 0:
                         return n
             bad = check_ids(col)
+            counted = n
+            if optional:
+                # absent or null is fine in an optional column: only bad strings count
+                present = np.fromiter(map(is_not, col, repeat(None)), bool, n)
+                table.present[key] = present
+                counted = int(np.count_nonzero(present))
+                bad = [i for i in bad if present[i]]
             for i in bad:
                 _add(errors, i, key, "missing" if unsent(i) else "must be a non-empty string")
-            return n - len(bad)
+            return counted - len(bad)
         if kind == "object":
             present, faults = _objects(col, f.metadata["max_bytes"])
             for i, why in faults:

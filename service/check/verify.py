@@ -41,6 +41,7 @@ from service.check.exact import (
     _total,
 )
 from service.check.flows import _allocation, _amounts_differ
+from service.check.reasons import _reasons_differ
 from service.network.model import Network
 
 __all__ = ["verify_answer"]
@@ -51,7 +52,7 @@ _VIRTUAL = ("super_source", "super_sink", "hard_pool")
 #: The checks after the node balances, skipped when those cannot be read.
 _AFTER_BALANCES = ["unused", "unmet", "objective", "hard_shortfall", "unmet_demand_policy",
                    "shortfall_cut", "potentials", "dual_feasibility",
-                   "complementary_slackness", "dual_objective"]
+                   "complementary_slackness", "dual_objective", "unmet_reasons"]
 
 
 def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
@@ -142,8 +143,8 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     pi, wrong = _potentials(net, cert, index)
     if pi is None:
         checks.add("potentials", wrong, "")
-        checks.skip(["dual_feasibility", "complementary_slackness", "dual_objective"],
-                    "potentials incomplete")
+        checks.skip(["dual_feasibility", "complementary_slackness", "dual_objective",
+                     "unmet_reasons"], "potentials incomplete")
         return _result(checks)
     checks.add("potentials", None, "one potential per source, sink and node")
     S, T, P = net.n_user, net.n_user + 1, net.n_user + 2
@@ -186,6 +187,9 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     else:
         bad_dual = None
     checks.add("dual_objective", bad_dual, "dual objective equals the objective")
+    checks.add("unmet_reasons", _reasons_differ(net, answer["unmet"], index, arc, x, unused,
+                                                pi),
+               "each reason given for unmet demand follows the rule")
     return _result(checks)
 
 

@@ -37,6 +37,8 @@ class _Model:
     violation: np.ndarray = field(init=False)
     stray: list[dict[str, Any]] = field(default_factory=list)
     unmet: dict[str, int] = field(default_factory=dict)
+    #: (reason, reduced cost or None) of each unmet row that gives a reason
+    reasons: dict[str, tuple[str, Any]] = field(default_factory=dict)
     unused: dict[str, int] = field(default_factory=dict)
     pi: np.ndarray = field(init=False)
 
@@ -97,6 +99,8 @@ def _model(body: Mapping[str, Any], verdict: Mapping[str, Any]) -> _Model:
         from_matrix=from_matrix, unmet_policy=str(body.get("unmet_demand", "minimize")),
         tail=tail, head=head, cost=cost, cap=cap)
     m.unmet = _amounts(answer.get("unmet", []))
+    m.reasons = {str(r["id"]): (str(r["reason"]), r.get("reduced_cost"))
+                 for r in answer.get("unmet", []) if r.get("reason") in _REASONS}
     m.unused = _amounts(answer.get("unused", []))
     m.flow = _flows(m, answer.get("allocation", []), index, len(sinks))
     potentials = answer.get("certificate", {}).get("potentials", {})
@@ -116,6 +120,9 @@ def _model(body: Mapping[str, Any], verdict: Mapping[str, Any]) -> _Model:
 
 def _float(x: Any) -> float:
     return float(x) if isinstance(x, int | float) and not isinstance(x, bool) else math.nan
+
+
+_REASONS = ("no-eligible-source", "capacity", "penalty")
 
 
 def _amounts(rows: Iterable[Mapping[str, Any]]) -> dict[str, int]:

@@ -157,6 +157,19 @@ def _rc_summary(m: _Model) -> list[tuple[str, str]]:
     return rows
 
 
+def _why(m: _Model, sid: str) -> str:
+    """Why a sink waits, in words (README, "Why a sink waits")."""
+    if sid not in m.reasons:
+        return "-"
+    reason, reduced = m.reasons[sid]
+    if reason == "no-eligible-source":
+        return "no eligible source: nothing can reach it"
+    if reason == "capacity":
+        return "capacity: whoever could serve it is full"
+    return (f"penalty: serving it costs at least {_esc(_num(reduced))} more than waiting"
+            if reduced is not None else "penalty: cheaper to wait")
+
+
 def _sink_rows(m: _Model) -> tuple[list[list[str]], int]:
     rows = []
     for j, sid in enumerate(m.sinks):
@@ -166,7 +179,7 @@ def _sink_rows(m: _Model) -> tuple[list[list[str]], int]:
         p = m.penalty[j]
         kind = ('<span class="pill hard">hard</span>' if p is None else
                 f'<span class="pill soft">soft</span> penalty {_esc(_num(p))} per unit')
-        rows.append([_esc(sid), str(m.demand[j]), str(amount), kind])
+        rows.append([_esc(sid), str(m.demand[j]), str(amount), kind, _why(m, sid)])
     return rows, len(rows)
 
 
@@ -276,7 +289,7 @@ def render_html(body: Mapping[str, Any], verdict: Mapping[str, Any],
     spare_rows = [[_esc(sid), str(m.supply[i]), str(m.unused[sid])]
                   for i, sid in enumerate(m.sources) if m.unused.get(sid)]
     parts.append('<div class="two"><div><h2>Unmet demand</h2>')
-    parts.append(_table(["sink", "demand", "unmet", "kind"], unmet_rows, {1, 2})
+    parts.append(_table(["sink", "demand", "unmet", "kind", "why it waits"], unmet_rows, {1, 2})
                  if unmet_rows else "<p>None: every sink gets its whole demand.</p>")
     parts.append("</div><div><h2>Unused supply</h2>")
     parts.append(_table(["source", "supply", "unused"], spare_rows, {1, 2})

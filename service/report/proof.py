@@ -13,7 +13,8 @@ from service.report.style import _esc, _num, _plural
 #: statement are named in the order the verifier makes them.
 _CLAIMS = {
     "possible": ("allocation_arcs", "capacity", "conservation", "supply", "demand"),
-    "reported": ("allocation_costs", "unused", "unmet", "flow_value", "objective"),
+    "reported": ("data", "allocation_costs", "unused", "unmet", "flow_value", "objective"),
+    "reasons": ("unmet_reasons",),
     "shortfall": ("hard_shortfall", "unmet_demand_policy", "shortfall_cut"),
     "bound": ("sense", "potentials", "dual_feasibility", "dual_objective"),
     "slackness": ("complementary_slackness",),
@@ -59,6 +60,30 @@ def _item(m: _Model, claim: str, shown: str, title: str) -> tuple[bool, str]:
                    f"{'they' if len(failed) > 1 else 'it'} failed.")
 
 
+def _reasons_item(m: _Model) -> tuple[bool, str]:
+    """Why the waiting sinks wait, as the answer says and the verifier checked."""
+    counts: dict[str, int] = {}
+    for why, _ in m.reasons.values():
+        counts[why] = counts.get(why, 0) + 1
+    if not counts:
+        return _item(m, "reasons", "<b>Every unmet sink waits for the reason given</b> "
+                     "(this answer gives none).", "that each sink waits for the reason given")
+    said = ", ".join(f"{_plural(k, 'sink')} {_esc(_WHY[w])}" for w, k in sorted(counts.items()))
+    return _item(m, "reasons",
+                 f"<b>Every unmet sink waits for the reason given:</b> {said}. The verifier "
+                 "searched the network again for each one: from the sources with supply (is "
+                 "there any path?), then from those with spare supply through the allocation's "
+                 "residual graph (could anyone free serve it?), and recomputed each reduced "
+                 "cost from the potentials.",
+                 "that each sink waits for the reason given")
+
+
+#: A reason in words (README, "Why a sink waits").
+_WHY = {"no-eligible-source": "with no eligible source",
+        "capacity": "behind full capacity",
+        "penalty": "waiting because their penalty is cheaper than serving them"}
+
+
 def _proof_items(m: _Model) -> list[tuple[bool, str]]:
     """(holds, sentence) for each thing a valid certificate proves, with this answer's
     numbers where they are shown. A page whose answer is NOT VALID never states a claim
@@ -81,6 +106,7 @@ def _proof_items(m: _Model) -> list[tuple[bool, str]]:
               "the allocation gives.",
               "that the figures reported are this allocation's"),
     ]
+    items.append(_reasons_item(m))
     if short == 0:
         items.append(_item(
             m, "shortfall",

@@ -12,9 +12,10 @@ import numpy as np
 
 from schemas.numbers import MAX_ANSWER_VALUE
 from service.errors import OutOfRange
-from service.network.model import Network
+from service.network.model import Flow, Network
 from service.solve.certificate import Certificate
 from service.solve.dispatch import Solution
+from service.solve.reasons import PENALTY, waiting_reasons
 
 #: Fractional numbers of an answer stay below this magnitude (see ``_values``).
 FRACTIONAL_LIMIT = 2**33
@@ -61,6 +62,23 @@ def _within_range(net: Network, top: int) -> None:
                          f"answer numbers need {ANSWER_BOUND}; use smaller costs or quantities")
 
 
+def _unmet_rows(net: Network, flow: Flow, short: np.ndarray, idle: np.ndarray,
+                pi: np.ndarray) -> list[dict[str, Any]]:
+    """One row per sink left short: amount, hard or soft, and why it waits."""
+    short_at = np.flatnonzero(short)
+    reasons, reduced = waiting_reasons(net, flow, short, idle, pi)
+    prices = _values(net, reduced) if PENALTY in reasons else []
+    rows = []
+    for k, (i, hard, why) in enumerate(zip(short_at.tolist(), (~net.soft[short_at]).tolist(),
+                                           reasons, strict=True)):
+        row = {"id": net.ids[net.sink_offset + i], "amount": int(short[i]), "hard": hard,
+               "reason": why}
+        if why == PENALTY:
+            row["reduced_cost"] = prices[k]
+        rows.append(row)
+    return rows
+
+
 def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[str, Any]:
     """The answer document (plain dicts and lists, ready for JSON)."""
     ext, xv, pi = cert.ext, cert.virtual_flow, cert.potential
@@ -84,7 +102,6 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
     short = np.zeros(net.n_sinks, np.int64)
     short[ext.soft_sinks] = xv[ext.blocks["soft"]]
     short[ext.hard_sinks] = xv[ext.blocks["hard"]]
-    short_at = np.flatnonzero(short).tolist()
     idle = net.supply - xv[ext.blocks["supply"]]
     sign = net.sign
     side = solution.shortfall.sink_side
@@ -101,8 +118,7 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
         "objective": _value(net, sign * cert.primal),
         "flow_value": int(xv[ext.blocks["supply"]].sum()),
         "allocation": allocation,
-        "unmet": [{"id": ids[off + i], "amount": int(short[i]), "hard": hard}
-                  for i, hard in zip(short_at, (~net.soft[short_at]).tolist(), strict=True)],
+        "unmet": _unmet_rows(net, flow, short, idle, pi),
         "unused": [{"id": ids[i], "amount": int(idle[i])}
                    for i in np.flatnonzero(idle).tolist()],
         "certificate": {

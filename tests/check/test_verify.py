@@ -48,7 +48,8 @@ FLOW = {
 SHORT = examples.SHORT
 
 #: Checks that prove least cost; a feasible but dearer answer must fail some of these only.
-OPTIMALITY = {"dual_feasibility", "complementary_slackness", "dual_objective"}
+# unmet_reasons: a penalty row's reduced_cost is read from the potentials
+OPTIMALITY = {"dual_feasibility", "complementary_slackness", "dual_objective", "unmet_reasons"}
 
 
 def solved(solve, problem: dict[str, Any]) -> dict[str, Any]:
@@ -115,7 +116,11 @@ def test_maximising_answer_verifies(solve, verify):
 
 def test_transshipment_answer_matches_the_hand_optimum_and_verifies(flow, verify):
     assert flow["objective"] == 36
-    assert flow["unmet"] == [{"id": "south", "amount": 2, "hard": False}]
+    # plant has 2 spare and reaches south (9 a unit, over its penalty 6): it waits for its
+    # penalty; south is half served, so its waiting arc is strictly between its bounds and
+    # its reduced cost is 0 (complementary slackness, common practice, no source)
+    assert flow["unmet"] == [{"id": "south", "amount": 2, "hard": False, "reason": "penalty",
+                              "reduced_cost": 0}]
     assert flow["unused"] == [{"id": "plant", "amount": 2}]
     assert checked(verify, FLOW, flow)["valid"] is True
 

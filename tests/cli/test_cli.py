@@ -125,7 +125,8 @@ def test_same_shortage_without_reject_is_a_plan_with_exit_3(capsys, tmp_path):
         "costs": [[3, 4]],
     }
     answer = _solve_local(capsys, _write(tmp_path, problem), expect=3)
-    assert answer["unmet"] == [{"id": "stop-2", "amount": 1, "hard": True}]
+    assert answer["unmet"] == [{"id": "stop-2", "amount": 1, "hard": True,
+                                "reason": "capacity"}]
 
 
 def test_malformed_file_exits_1_with_the_problem_document(capsys, tmp_path):
@@ -269,7 +270,8 @@ def test_serve_without_config_file_uses_our_defaults(monkeypatch):
 
 # Worked by hand: ticket-2 (2 units) can only come from tech-a, which then has no slot
 # left, so ticket-1 goes to tech-b and the soft ticket-3 waits at its penalty:
-# 2 x 25 + 12 + 30 = 92. Common practice, no source.
+# 2 x 25 + 12 + 30 = 92; ticket-3's only server, tech-b, is full, and no source has a
+# slot left: it waits for capacity (README "Why a sink waits"). Common practice, no source.
 TABLE = """\
 ,ticket-1,ticket-2,ticket-3,supply
 tech-a,10,25,,2
@@ -293,7 +295,8 @@ def test_csv_table_is_solved_with_supply_demand_and_penalty(capsys, tmp_path):
     assert answer["objective"] == 92
     assert {(r["from"], r["to"], r["flow"]) for r in answer["allocation"]} == {
         ("tech-a", "ticket-2", 2), ("tech-b", "ticket-1", 1)}
-    assert answer["unmet"] == [{"id": "ticket-3", "amount": 1, "hard": False}]
+    assert answer["unmet"] == [{"id": "ticket-3", "amount": 1, "hard": False,
+                                "reason": "capacity"}]
 
 
 def test_csv_empty_cells_are_pairs_not_allowed(capsys, tmp_path):

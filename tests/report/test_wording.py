@@ -46,6 +46,7 @@ RESTS_ON = {
     "dual_feasibility": ["than the dual objective"],
     "dual_objective": ["than the dual objective"],
     "complementary_slackness": ["slackness holds", "reaches the bound"],
+    "unmet_reasons": ["waits for the reason given"],
 }
 
 
