@@ -204,9 +204,14 @@ def worker_exit(server: Any, worker: Any) -> None:
     exit code, which the master reads to tell a failed boot from a recycle. The master
     calls it too, for a worker found already gone: there it does nothing.
     """
+    if worker.pid != os.getpid():
+        return
+    # the engine host leaves when its socket closes; reaped here, so none is left behind
+    from service.solve import host
+
+    host.stop()
     leaving = sys.exc_info()[1]
-    if (worker.pid != os.getpid() or not isinstance(leaving, SystemExit)
-            or leaving.code not in (0, None)):
+    if not isinstance(leaving, SystemExit) or leaving.code not in (0, None):
         return
     logging.shutdown()
     sys.stdout.flush()
@@ -215,7 +220,12 @@ def worker_exit(server: Any, worker: Any) -> None:
 
 
 def post_worker_init(worker: Any) -> None:
-    """In each worker, once: gunicorn's own error answers become problem documents.
+    """In each worker, once: the engine host is started, and gunicorn's own error answers
+    become problem documents.
+
+    The engine host (``service.solve.host``) is forked now, while the worker holds only
+    its imports and app: a host forked later, in the middle of a request, would keep that
+    request's memory alive (copy-on-write) for as long as it lives.
 
     gunicorn answers a request it cannot parse (a bad request line, header fields over
     ``limit_request_field_size``...) itself, before the app sees it, with a small HTML page
@@ -227,6 +237,9 @@ def post_worker_init(worker: Any) -> None:
     """
     from gunicorn import util
 
+    from service.solve import host
+
+    host.start()
     util.write_error = write_problem
 
 

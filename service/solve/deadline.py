@@ -42,13 +42,28 @@ BUSY_SHARE = 0.5
 #: ...and it lost at least this many seconds to other work (less is scheduling noise).
 BUSY_LOST_S = 0.1
 
-#: Child processes working for the request right now (engine calls forked by
-#: :mod:`service.solve.isolation`): the CPU time they spend is the request's own.
-working_children: set[int] = set()
+class _WorkingChildren(dict[int, float]):
+    """Child processes working for the request right now: pid -> the CPU seconds the
+    child had already spent when it began (0 for a child forked for the call, the
+    engine host's earlier work otherwise)."""
+
+    def add(self, pid: int, already: float = 0.0) -> None:
+        self[pid] = already
+
+    def discard(self, pid: int) -> None:
+        self.pop(pid, None)
 
 
-def _child_cpu(pid: int) -> float:
-    """CPU seconds of a live child so far (Linux /proc), 0 once it is gone."""
+#: Engine calls in child processes (:mod:`service.solve.isolation`, :mod:`.host`): the
+#: CPU time they spend is the request's own.
+working_children = _WorkingChildren()
+#: CPU seconds of finished calls in children that live on (the engine host), less what a
+#: reaped child's whole life adds to this process's children times (see child_reaped).
+_settled = 0.0
+
+
+def child_cpu(pid: int) -> float:
+    """CPU seconds of a live (or not yet reaped) child so far (Linux /proc), 0 once gone."""
     try:
         with open(f"/proc/{pid}/stat", encoding="ascii") as f:
             stat = f.read()
@@ -58,11 +73,31 @@ def _child_cpu(pid: int) -> float:
     return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
 
 
+_child_cpu = child_cpu
+
+
+def child_idle(pid: int) -> None:
+    """A child that lives on finished its call: what the call spent stays counted."""
+    global _settled
+    already = working_children.pop(pid, None)
+    if already is not None:
+        _settled += child_cpu(pid) - already
+
+
+def child_reaped(pid: int, spent: float) -> None:
+    """A child was reaped after spending ``spent`` CPU seconds in its life (read just before
+    the reaping): its whole life now shows in ``os.times()``'s children times, of which
+    only what it spent while working for a request counts."""
+    global _settled
+    already = working_children.pop(pid, None)
+    _settled -= spent if already is None else already
+
+
 def _request_cpu() -> float:
     """CPU seconds of this process, of its reaped children and of the children at work."""
     done = os.times()
-    return (time.process_time() + done.children_user + done.children_system
-            + sum(_child_cpu(pid) for pid in working_children))
+    return (time.process_time() + done.children_user + done.children_system + _settled
+            + sum(child_cpu(pid) - already for pid, already in working_children.items()))
 
 
 #: The clocks, looked up at call time so that tests can stand in for them.

@@ -1,22 +1,28 @@
-"""Engine calls the time limit can stop: a forked child process, killed at the deadline.
+"""Engine calls the time limit can stop: in a child process, killed at the deadline.
 
 The per-request limit (:mod:`service.solve.deadline`) is a SIGALRM whose handler raises
 between Python bytecodes, so it cannot stop one long call into compiled code (OR-Tools'
 cost scaling is quadratic on a long path: 15 s for a 12,000-node chain). :func:`run` makes
-such a call in a forked child instead. The child inherits the input arrays copy-on-write
-(nothing is serialised on the way in), runs the call and sends back a dict of numpy
-arrays through a pipe, each in numpy's ``.npy`` format, read with ``allow_pickle=False``
-(no pickle crosses the pipe). It always leaves with ``os._exit``, so no exit handler, log
-flush or gunicorn hook of the worker runs in it, and it touches no metric.
+such a call in a child process instead:
 
-The worker waits on the pipe; when the deadline fires, its handler raises
+* the worker's persistent engine host (:mod:`service.solve.host`), which takes arrays and
+  numbers over a socket and is replaced only after a kill;
+* a child forked for the call, when the call has other arguments (stage 1's whole
+  network) or no host can be started. It inherits the input arrays copy-on-write
+  (nothing is serialised on the way in), runs the call and sends back a dict of numpy
+  arrays through a pipe, each in numpy's ``.npy`` format, read with
+  ``allow_pickle=False`` (no pickle crosses the pipe). It always leaves with
+  ``os._exit``, so no exit handler, log flush or gunicorn hook of the worker runs in it,
+  and it touches no metric.
+
+The worker waits on the socket or pipe; when the deadline fires, its handler raises
 :class:`~service.errors.TimeLimitExceeded` out of the wait, exactly as anywhere else in
-the request, and the ``finally`` kills the child with SIGKILL and reaps it. So a killed
-child is the same 503 ``time-limit`` answer as any other late request, the worker is
-free at once, and all the engine's memory goes with the child.
+the request, and the ``finally`` kills the child (the host or the forked one) with SIGKILL
+and reaps it. So a killed child is the same ``time-limit`` answer as any other late
+request, the worker is free at once, and all the engine's memory goes with the child.
 
-Small calls run in the process (:data:`IN_PROCESS_WORK`): a fork costs 5-50 ms here,
-more than a small problem's whole solve. The child is asked to die with its parent
+Small calls run in the process (:data:`IN_PROCESS_WORK`): even the host's round trip is
+more than a small problem's call. Both children are asked to die with their parent
 (Linux ``PR_SET_PDEATHSIG``), so a worker killed by gunicorn's timeout or by ``kill -9``
 takes its engine run with it.
 """
@@ -35,7 +41,7 @@ from typing import Any
 
 import numpy as np
 
-from service.solve import deadline
+from service.solve import deadline, host
 
 __all__ = ["IN_PROCESS_WORK", "Arrays", "run"]
 
@@ -69,8 +75,17 @@ def run(call: Callable[..., Arrays], *args: Any, work: int) -> Arrays:
     of the request): there the deadline bounds the wait. Elsewhere (no limit, or a thread
     that signals do not reach) the call runs in the process, as it always did.
     """
-    if work <= IN_PROCESS_WORK or not _can_fork():
+    if work <= IN_PROCESS_WORK or host.in_host() or not _can_fork():
         return call(*args)
+    mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGALRM})
+    try:
+        return host.call(call, args)
+    except host.Refused:
+        pass
+    except (EOFError, OSError):         # the host died or broke the stream: killed, reaped
+        raise RuntimeError("the engine process ended without an answer") from None
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, mask)
     return _forked(call, args)
 
 
@@ -124,6 +139,7 @@ def _child(call: Callable[..., Arrays], args: tuple[Any, ...], read_end: int,
     code = 1
     try:
         os.close(read_end)
+        host.forget()
         _die_with_parent()
         try:
             out = call(*args)

@@ -16,7 +16,7 @@ import pytest
 from servers import GOOD, GOOD_OBJECTIVE, gunicorn, wait_for
 
 from service.errors import ServerBusy, TimeLimitExceeded
-from service.solve import isolation
+from service.solve import host, isolation
 from service.solve.deadline import deadline
 
 BIG = isolation.IN_PROCESS_WORK + 1
@@ -169,22 +169,30 @@ def _short(problem: dict) -> dict:
      "sinks": [{"id": f"j{j}"} for j in range(500)],
      "costs": np.random.default_rng(3).integers(0, 4, size=(500, 500)).tolist()},  # lapjv
 ], ids=["network-simplex", "stage-one", "min-cost-flow", "lapjv"])
-def test_the_same_request_gives_the_same_bytes_forked_or_not(problem, monkeypatch):
+@pytest.mark.parametrize("child", ["host", "forked"])
+def test_the_same_request_gives_the_same_bytes_in_a_child_or_not(problem, child, monkeypatch):
     import orjson
 
     from service.settings import load_settings
     from service.solve.pipeline import solve_body
 
     settings = load_settings()
-    children = []
-    real = isolation._forked
-    monkeypatch.setattr(isolation, "_forked", lambda *a: children.append(1) or real(*a))
-    forked = [orjson.dumps(solve_body(problem, settings)) for _ in range(3)]
-    assert children                      # the engine did run in a child
+    used = []
+    if child == "forked":       # as when no engine host can be started
+        def refuse(*a):
+            raise host.Refused("test")
+        monkeypatch.setattr(host, "call", refuse)
+        real = isolation._forked
+        monkeypatch.setattr(isolation, "_forked", lambda *a: used.append(1) or real(*a))
+    else:
+        real_call = host.call
+        monkeypatch.setattr(host, "call", lambda *a: used.append(1) or real_call(*a))
+    in_child = [orjson.dumps(solve_body(problem, settings)) for _ in range(3)]
+    assert used                          # the engine did run in that child
     monkeypatch.setattr(isolation, "IN_PROCESS_WORK", 10**30)
     in_process = orjson.dumps(solve_body(problem, settings))
-    assert len(set(forked)) == 1
-    assert forked[0] == in_process
+    assert len(set(in_child)) == 1
+    assert in_child[0] == in_process
 
 
 def test_the_cpu_of_a_child_at_work_counts_as_the_request_s():
