@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import math
 import os
+import resource
 import signal
 import threading
 import time
@@ -95,8 +96,10 @@ def child_reaped(pid: int, spent: float) -> None:
 
 def _request_cpu() -> float:
     """CPU seconds of this process, of its reaped children and of the children at work."""
-    done = os.times()
-    return (time.process_time() + done.children_user + done.children_system + _settled
+    # getrusage, not os.times(): the same figures, but os.times() took 0.1-9 ms a call on
+    # this virtual machine (getrusage: under a microsecond), and this runs every request
+    reaped = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return (time.process_time() + reaped.ru_utime + reaped.ru_stime + _settled
             + sum(child_cpu(pid) - already for pid, already in working_children.items()))
 
 
