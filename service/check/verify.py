@@ -22,6 +22,7 @@ import numpy as np
 import orjson
 
 from service.check.checks import _Checks, _result
+from service.check.distances import residual_arcs
 from service.check.duals import (
     _bounded_below_capacity,
     _bounded_dual_term,
@@ -41,6 +42,7 @@ from service.check.exact import (
     _total,
 )
 from service.check.flows import _allocation, _amounts_differ
+from service.check.prices import PRICE_CHECKS, check_prices
 from service.check.reasons import _reasons_differ
 from service.network.model import Network
 
@@ -190,7 +192,31 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     checks.add("unmet_reasons", _reasons_differ(net, answer["unmet"], index, arc, x, unused,
                                                 pi),
                "each reason given for unmet demand follows the rule")
+    if answer.get("prices") is not None:
+        _check_prices(checks, net, answer, arc, x, pi,
+                      (v_tail, v_head, v_reduced, v_cap, v_x))
     return _result(checks)
+
+
+def _check_prices(checks: _Checks, net: Network, answer: dict[str, Any], arc: np.ndarray,
+                  x: np.ndarray, pi: np.ndarray, virtual: tuple[np.ndarray, ...]) -> None:
+    """The override prices, once the answer itself is proven optimal."""
+    if not all(c["passed"] for c in checks.items):
+        checks.skip(PRICE_CHECKS, "the answer itself is not proven optimal")
+        return
+    if pi.dtype == object:
+        checks.skip(PRICE_CHECKS, "potentials beyond 2**60")
+        return
+    arcs = net.arcs
+    flow = np.zeros(len(arcs), np.int64)
+    np.add.at(flow, arc if net.arc_list is not None else np.searchsorted(arcs.id, arc), x)
+    reduced = arcs.cost - pi[arcs.tail] + pi[arcs.head]
+    pairs = {"tail": arcs.tail, "head": arcs.head, "id": arcs.id, "flow": flow,
+             "reduced": reduced, "room": ~arcs.bounded | (flow < arcs.capacity)}
+    g = residual_arcs(net.n_user + 3, (arcs.tail, arcs.head, arcs.id, reduced,
+                                       arcs.capacity, arcs.bounded, flow), virtual)
+    check_prices(checks, g, pairs, answer["prices"], answer["certificate"].get("prices"),
+                 net.cost_scale)
 
 
 def _data_differs(net: Network, data: dict[str, Any]) -> str | None:

@@ -126,7 +126,7 @@ def override_prices(net: Network, flow_of_plan, cert: Certificate, max_work: int
         found = reroute(res, int(arcs.id[p]), int(arcs.tail[p]), int(arcs.head[p]), k)
         reroutes[p] = found
         forbid[p] = NONE if found.extra is None else k * -int(r_fwd[p]) + found.extra
-    unit_steps = {p: s for p, (extra, s) in paths.items() if extra is not None}
+    unit_steps = {p: s for p, (_, s) in paths.items()}
     return Prices(res, x, force, forbid, roots, dist, succ, unit_steps, reroutes)
 
 
