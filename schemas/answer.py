@@ -100,6 +100,89 @@ class CertificateSchema(Schema):
                                    "certificate'); checked when the answer has prices"})
 
 
+#: The two sides of a child cell: the branch pair's flow at most one less, or at least one
+#: more, than the plan's (README, "Ranked alternatives").
+SIDES = ("below", "above")
+VIRTUAL_NODES = ("super_source", "super_sink", "hard_pool")
+_COUNT = {"kind": "count", "bound": MAX_ANSWER_VALUE}
+
+
+class PairSchema(Schema):
+    """One pair (arc) of the problem: its ends, and its index when the problem gives arcs."""
+
+    from_ = fields.String(required=True, data_key="from")
+    to = fields.String(required=True)
+    arc = Number(**_COUNT)
+
+
+class BoundSchema(PairSchema):
+    """The flows a cell allows on one pair: ``min`` to ``max`` (null: no upper bound)."""
+
+    min = Number(required=True, **_COUNT)
+    max = Number(required=True, allow_none=True, **_COUNT)
+
+
+class CellSchema(Schema):
+    """Where a plan's cell lies in the partition, and the bounds that define it."""
+
+    parent = Number(required=True, **_COUNT)
+    branch = Number(required=True, **_COUNT)
+    side = fields.String(required=True, validate=validate.OneOf(SIDES))
+    bounds = fields.List(fields.Nested(BoundSchema), required=True)
+
+
+class CellCertificateSchema(Schema):
+    """Potentials proving a plan optimal in its cell (README, "The certificate")."""
+
+    potentials = NumberMap(required=True)
+    virtual_potentials = fields.Nested(VirtualPotentialsSchema, required=True)
+    dual_objective = Number(required=True, bound=MAX_ANSWER_VALUE)
+
+
+class AlternativeSchema(Schema):
+    """One next-best plan: the best plan of its cell."""
+
+    objective = Number(required=True, bound=MAX_ANSWER_VALUE)
+    allocation = RecordList(AllocationRowSchema, required=True)
+    unmet = RecordList(UnmetSchema, required=True)
+    unused = RecordList(AmountSchema, required=True)
+    cell = fields.Nested(CellSchema, required=True)
+    certificate = fields.Nested(CellCertificateSchema, required=True)
+
+
+class EmptyCellSchema(Schema):
+    """A node set whose balance the cell's bounds cannot carry: the cell holds no plan."""
+
+    nodes = IdList(required=True)
+    virtual_nodes = fields.List(fields.String(validate=validate.OneOf(VIRTUAL_NODES)),
+                                load_default=list)
+
+
+class FrontierSchema(Schema):
+    """A cell left unexpanded, with a proof that it holds no plan better than the last
+    alternative: a lower bound from potentials, or ``empty``."""
+
+    parent = Number(required=True, **_COUNT)
+    branch = Number(required=True, **_COUNT)
+    side = fields.String(required=True, validate=validate.OneOf(SIDES))
+    bound = Number(bound=MAX_ANSWER_VALUE)
+    shift = Number(bound=MAX_ANSWER_VALUE)
+    distances = NumberMap()
+    virtual_distances = fields.Dict(keys=fields.String(validate=validate.OneOf(VIRTUAL_NODES)),
+                                    values=Number(bound=MAX_ANSWER_VALUE))
+    empty = fields.Nested(EmptyCellSchema)
+
+
+class PartitionSchema(Schema):
+    """The cells of all plans: each listed plan's branch pairs (null when not split), and
+    the cells left unexpanded."""
+
+    requested = Number(required=True, **_COUNT)
+    branches = fields.List(fields.List(fields.Nested(PairSchema), allow_none=True),
+                           required=True)
+    frontier = fields.List(fields.Nested(FrontierSchema), required=True)
+
+
 class AnswerSchema(Schema):
     """An answer to check: as returned by /v1/solve, or produced by anyone else."""
 
@@ -117,6 +200,9 @@ class AnswerSchema(Schema):
     data = fields.Dict(keys=fields.String(), values=fields.Dict(), metadata={
         "description": "the data objects of the request's sources, nodes and sinks by id; "
                        "checked when present"})
+    alternatives = fields.List(fields.Nested(AlternativeSchema), metadata={
+        "description": "the next-best plans, best first (README, 'Ranked alternatives')"})
+    partition = fields.Nested(PartitionSchema)
 
 
 class SolveResultSchema(AnswerSchema):

@@ -12,6 +12,8 @@ from schemas.tables import CostMatrix, RecordList
 
 OBJECTIVES = ("min", "max")
 UNMET_POLICIES = ("minimize", "reject")
+#: Most next-best plans a request may ask for (README, "Ranked alternatives").
+MAX_ALTERNATIVES = 50
 #: Largest time_limit_s a request may name (one day); the server caps it lower.
 MAX_TIME_LIMIT = 86_400
 #: The lists that declare ids, in the order the ids are numbered (README, "Determinism").
@@ -86,6 +88,9 @@ class ProblemSchema(Schema):
                                  validate=validate.OneOf(UNMET_POLICIES))
     prices = StrictBoolean(load_default=False, metadata={
         "description": "also price overriding every allowed pair (README, 'Override prices')"})
+    alternatives = Number(kind="count", bound=MAX_ALTERNATIVES, validate=validate.Range(
+        min=1, error=f"must be a whole number from 1 to {MAX_ALTERNATIVES}"),
+        metadata={"description": "how many next-best plans to return, each certified"})
     time_limit_s = Number(bound=MAX_TIME_LIMIT, validate=validate.Range(
         min=0, min_inclusive=False, error="must be more than 0 seconds"),
         metadata={"description": "seconds this request may compute, capped by the server"})

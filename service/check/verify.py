@@ -42,6 +42,7 @@ from service.check.exact import (
     _total,
 )
 from service.check.flows import _allocation, _amounts_differ
+from service.check.partition import check_partition
 from service.check.prices import PRICE_CHECKS, check_prices
 from service.check.reasons import _reasons_differ
 from service.network.model import Network
@@ -57,9 +58,22 @@ _AFTER_BALANCES = ["unused", "unmet", "objective", "hard_shortfall", "unmet_dema
                    "complementary_slackness", "dual_objective", "unmet_reasons"]
 
 
-def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
-    """Check ``answer`` (loaded by AnswerSchema) against ``net``; ``{"valid", "checks"}``."""
+def verify_answer(net: Network, answer: dict[str, Any], *,
+                  alternatives: int | None = None) -> dict[str, Any]:
+    """Check ``answer`` (loaded by AnswerSchema) against ``net``; ``{"valid", "checks"}``.
+
+    ``alternatives``: how many next-best plans the problem asked for; they and their
+    partition are checked whenever the problem asks for them or the answer has them.
+    """
     checks = _Checks()
+    _check_optimum(net, answer, checks)
+    if alternatives is not None or "alternatives" in answer or "partition" in answer:
+        check_partition(net, answer, checks, alternatives,
+                        lambda doc: verify_answer(net, doc))
+    return _result(checks)
+
+
+def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks) -> None:
     ids = net.ids
     index = dict(zip(ids, range(len(ids)), strict=True))
     scale = net.cost_scale
@@ -77,7 +91,7 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     if used is None:
         checks.skip(["capacity", "conservation", "supply", "demand", *_AFTER_BALANCES],
                     "the allocation does not name allowed arcs")
-        return _result(checks)
+        return
     arc, x = used
     tail, head = net.endpoints(arc)
     cost = net.arc_cost(arc)
@@ -108,7 +122,7 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     if net_out.dtype == object:
         # a balance beyond 2**60: one of the three checks above has failed
         checks.skip(_AFTER_BALANCES, "node balances beyond 64-bit range")
-        return _result(checks)
+        return
     unused = net.supply - sent
     unmet = net.demand - received
     checks.add("unused", _amounts_differ(answer["unused"], unused, ids, index, 0,
@@ -147,7 +161,7 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
         checks.add("potentials", wrong, "")
         checks.skip(["dual_feasibility", "complementary_slackness", "dual_objective",
                      "unmet_reasons"], "potentials incomplete")
-        return _result(checks)
+        return
     checks.add("potentials", None, "one potential per source, sink and node")
     S, T, P = net.n_user, net.n_user + 1, net.n_user + 2
 
@@ -195,7 +209,6 @@ def verify_answer(net: Network, answer: dict[str, Any]) -> dict[str, Any]:
     if answer.get("prices") is not None:
         _check_prices(checks, net, answer, arc, x, pi,
                       (v_tail, v_head, v_reduced, v_cap, v_x))
-    return _result(checks)
 
 
 def _check_prices(checks: _Checks, net: Network, answer: dict[str, Any], arc: np.ndarray,

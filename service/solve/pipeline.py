@@ -23,10 +23,12 @@ from service.network.build import build_network
 from service.network.model import Network
 from service.settings import Settings
 from service.solve import dispatch
+from service.solve.alternatives import alternatives_answer
 from service.solve.answer import build_answer
 from service.solve.certificate import certify
 from service.solve.deadline import deadline
 from service.solve.prices_answer import add_prices
+from service.solve.ranked import rank
 
 log = logging.getLogger(__name__)
 
@@ -58,7 +60,11 @@ def solve_body(body: Any, settings: Settings,
         if data.get("prices"):
             clock.run("prices", add_prices, net, solution, cert, answer,
                       settings.max_prices_work)
-        clock.run("self_verify", self_check, net, answer)
+        if data.get("alternatives"):
+            k = data["alternatives"]
+            ranked = clock.run("alternatives", rank, net, cert, solution.flow, k)
+            answer.update(alternatives_answer(net, solution, cert, ranked, k))
+        clock.run("self_verify", self_check, net, answer, data.get("alternatives"))
     return answer
 
 
@@ -108,14 +114,15 @@ class _Clock:
             self.timings[phase] = time.perf_counter() - start
 
 
-def self_check(net: Network, answer: dict[str, Any]) -> None:
-    """Refuse to let an answer leave unless the independent verifier accepts it."""
+def self_check(net: Network, answer: dict[str, Any], alternatives: int | None = None) -> None:
+    """Refuse to let an answer leave unless the independent verifier accepts it
+    (``alternatives``: how many next-best plans the request asked for)."""
     try:
         loaded = _answer_schema.load(answer)
     except ValidationError as e:
         log.error("answer does not match its own schema: %s", e.messages)
         raise CertificateFailure("the answer does not match its own schema") from None
-    result = verify_answer(net, loaded)
+    result = verify_answer(net, loaded, alternatives=alternatives)
     if not result["valid"]:
         failed = [c for c in result["checks"] if not c["passed"]]
         log.error("self-check failed: %s", failed)
@@ -129,7 +136,8 @@ def verify_body(body: Any, settings: Settings) -> dict[str, Any]:
     with request_scope(), deadline(time_limit(body, settings), "checking this answer"):
         data = _load(_verify_schema, body)
         answer = data.pop("answer")
-        return verify_answer(build_network(data, settings), answer)
+        return verify_answer(build_network(data, settings), answer,
+                             alternatives=data.get("alternatives"))
 
 
 def recheck_stored(problem: Any, answer: Any, settings: Settings) -> tuple[bool, str]:

@@ -271,7 +271,9 @@ def _number_checks() -> Iterator[tuple[str, dict[str, Any], str, int, int | str 
                 # a Range(min=0, exclusive) validator is the spec's exclusiveMinimum: 0
                 positive = any(isinstance(v, validate.Range) and v.min == 0
                                and not v.min_inclusive for v in f.validators)
-                yield where, prop, f.kind, f.bound, ("exclusive 0" if positive else None)
+                least = next((v.min for v in f.validators if isinstance(v, validate.Range)
+                              and v.min is not None and v.min_inclusive), None)
+                yield where, prop, f.kind, f.bound, ("exclusive 0" if positive else least)
             elif isinstance(f, NumberMap):
                 yield f"{where}.*", prop.get("additionalProperties", {}), "number", \
                     MAX_ANSWER_VALUE, None
@@ -291,7 +293,7 @@ def test_number_bounds_are_the_checked_bounds(where: str, prop: dict[str, Any], 
     types = types if isinstance(types, list) else [types]
     if kind == "count":
         assert "integer" in types and "number" not in types
-        assert (prop.get("minimum"), prop.get("maximum")) == (0, bound)
+        assert (prop.get("minimum"), prop.get("maximum")) == (minimum or 0, bound)
     else:
         assert "number" in types
         if minimum == "exclusive 0":
