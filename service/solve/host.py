@@ -209,8 +209,7 @@ def stop() -> None:
     host.close()
     end = time.monotonic() + STOP_WAIT_S
     while time.monotonic() < end:
-        # WNOWAIT: seen to have left but not reaped yet, so its CPU time can still be read
-        if os.waitid(os.P_PID, host.pid, os.WEXITED | os.WNOHANG | os.WNOWAIT) is not None:
+        if _ended(host.pid):
             spent = deadline.child_cpu(host.pid)
             os.waitpid(host.pid, 0)
             deadline.child_reaped(host.pid, spent)
@@ -237,7 +236,10 @@ def _kill(host_pid: int) -> None:
     except ProcessLookupError:
         pass
     spent = deadline.child_cpu(host_pid)
-    os.waitpid(host_pid, 0)
+    try:
+        os.waitpid(host_pid, 0)
+    except ChildProcessError:           # reaped already (by a SIGCHLD handler of others)
+        pass
     deadline.child_reaped(host_pid, spent)
 
 
@@ -252,6 +254,8 @@ def call(fn: Callable[..., Arrays], args: tuple[Any, ...]) -> Arrays:
     the host killed and reaped.
     """
     header, arrays = _request(fn, args)
+    if _host is not None and _owner == os.getpid() and _ended(_host.pid):
+        _abandon(_host)             # died while idle (the OOM killer...): reaped, replaced
     host_pid = start()
     host = _host
     if host_pid is None or host is None:
@@ -281,6 +285,14 @@ def call(fn: Callable[..., Arrays], args: tuple[Any, ...]) -> Arrays:
     if "error" in reply:        # the call raised; the host is fine and serves on
         raise RuntimeError(f"the engine failed: {reply['error']}")
     return out
+
+
+def _ended(host_pid: int) -> bool:
+    """Whether the host has left (it is not reaped: its CPU time can still be read)."""
+    try:
+        return os.waitid(os.P_PID, host_pid, os.WEXITED | os.WNOHANG | os.WNOWAIT) is not None
+    except ChildProcessError:
+        return True
 
 
 def _abandon(host: _Host) -> None:

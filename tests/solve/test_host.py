@@ -14,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from servers import alive, wait_for
 
 from service.errors import ServerBusy, TimeLimitExceeded
 from service.solve import deadline as clock
@@ -124,6 +125,14 @@ def test_a_host_that_dies_is_an_error_and_is_replaced():
         _call(fn=_die)
     assert _gone(before)
     assert int(_call(np.arange(3), 1)["pid"]) not in (before, os.getpid())
+
+
+def test_a_host_killed_while_idle_is_replaced_without_an_error():
+    before = int(_call(np.arange(3), 1)["pid"])
+    os.kill(before, signal.SIGKILL)          # as the kernel's out-of-memory killer would
+    wait_for("the host to have died", lambda: not alive(before), 30)
+    assert int(_call(np.arange(3), 1)["pid"]) not in (before, os.getpid())
+    assert _gone(before)
 
 
 def test_stop_ends_and_reaps_the_host_and_frees_its_shared_memory():
