@@ -222,3 +222,38 @@ def test_frontier_cells_hold_nothing_below_their_bounds(seed):
             assert best is None
         elif best is not None:
             assert best >= sign * f["bound"]             # min form on both sides
+
+
+def transshipment_problem(seed: int) -> dict[str, Any]:
+    """Sources, depots and sinks with arcs among them (some capacitated, a depot loop)."""
+    rng = np.random.default_rng([seed, 77])
+    sources = [{"id": f"s{i}", "supply": int(rng.integers(1, 5))} for i in range(2)]
+    sinks: list[dict[str, Any]] = [{"id": f"t{j}", "demand": int(rng.integers(1, 4))}
+                                   for j in range(3)]
+    if rng.random() < 0.5:
+        sinks[0]["penalty"] = int(rng.integers(5, 40))
+    depots = ["d0", "d1"]
+    pairs = ([(s["id"], d) for s in sources for d in depots]
+             + [(d, t["id"]) for d in depots for t in sinks]
+             + [("d0", "d1"), ("d1", "d0"), ("s0", "t0")])
+    arcs = [{"from": a, "to": b, "cost": int(rng.integers(1, 15)),
+             "capacity": int(rng.integers(1, 4)) if rng.random() < 0.6 else None}
+            for a, b in pairs if rng.random() < 0.85]
+    return {"sources": sources, "sinks": sinks, "nodes": [{"id": d} for d in depots],
+            "arcs": arcs}
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_transshipment_alternatives_are_the_best_of_their_cells(seed):
+    # reference library: networkx.network_simplex, re-solving inside each cell
+    problem = transshipment_problem(seed)
+    answer = _solve({**problem, "alternatives": 5})
+    short = answer["certificate"]["hard_shortfall"]
+    assert best_in_cell(problem, short, {}) == answer["objective"]
+    for alt in answer["alternatives"]:
+        assert best_in_cell(problem, short, _bounds_of(alt["cell"]["bounds"])) == \
+            alt["objective"]
+    frontier = answer["partition"]["frontier"]
+    for f in frontier[:6]:
+        best = best_in_cell(problem, short, _frontier_bounds(answer, f))
+        assert best is None if "empty" in f else (best is None or best >= f["bound"])
