@@ -69,8 +69,10 @@ def _delimiter(text: str) -> str:
     return text
 
 
-def _overrides(args: argparse.Namespace) -> dict[str, str]:
-    found = {"objective": args.objective, "unmet_demand": args.unmet_demand}
+def _overrides(args: argparse.Namespace) -> dict[str, Any]:
+    found: dict[str, Any] = {"objective": args.objective, "unmet_demand": args.unmet_demand}
+    if getattr(args, "prices", False):
+        found["prices"] = True
     return {k: v for k, v in found.items() if v is not None}
 
 

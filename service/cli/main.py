@@ -148,6 +148,9 @@ def _add_solve(sub: Any, raw: type[argparse.HelpFormatter]) -> None:
     solve.add_argument("file", metavar="FILE", nargs="+",
                        help="the problem: JSON or CSV, - for stdin, or a folder")
     _add_problem_options(solve)
+    solve.add_argument("--prices", action="store_true",
+                       help="also price overriding every allowed pair (the request's "
+                       "\"prices\": true); the table lists the five cheapest overrides")
     out = solve.add_argument_group("output")
     out.add_argument("--format", choices=("json", "table", "csv"), default="json",
                      help="json (default), table or csv; see below")

@@ -81,6 +81,8 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
     lines.append("unused supply:" + ("" if answer["unused"] else " none"))
     if answer["unused"]:
         lines += _table(unused, frozenset({1}))
+    if answer.get("prices"):
+        lines += _cheapest_overrides(answer["prices"], maximize)
     lines.append("")
     what = ("greatest total score less penalties" if maximize
             else "least total cost plus penalties")
@@ -88,6 +90,27 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
     lines.append(f"units routed: {_num(answer.get('flow_value', flow))}")
     lines.append(verdict_line)
     return "\n".join(lines) + "\n"
+
+
+#: Overrides the table lists, cheapest first.
+CHEAPEST_OVERRIDES = 5
+
+
+def _cheapest_overrides(prices: list[dict[str, Any]], maximize: bool) -> list[str]:
+    """The five cheapest overrides: forcing an unused pair or forbidding a used one."""
+    found = [("force", r, r["force_delta"]) for r in prices
+             if r["flow"] == 0 and r.get("force_delta") is not None]
+    found += [("forbid", r, r["forbid_delta"]) for r in prices
+              if r["flow"] > 0 and r.get("forbid_delta") is not None]
+    found.sort(key=lambda f: f[2])
+    rows = [("override", "from", "to", "score lost" if maximize else "extra cost")]
+    rows += [(what, str(r["from"]), str(r["to"]), _num(delta))
+             for what, r, delta in found[:CHEAPEST_OVERRIDES]]
+    head = (f"cheapest overrides ({min(len(found), CHEAPEST_OVERRIDES)} of {len(found)}; "
+            "force = put a unit on an unused pair, forbid = take a used pair away):")
+    if not found:
+        return ["", "cheapest overrides: none possible with the same hard demand served"]
+    return ["", head, *_table(rows, frozenset({3}))]
 
 
 def _check_answer(post: Post, where: str | None, problem: dict[str, Any] | None,

@@ -54,7 +54,9 @@ def _heatmap(m: _Model, standalone: bool) -> str:
     # At least as wide as the legend: the ramp and three columns of swatches.
     width = max(left + grid_w + gap + spare_w + col_len * 0.5 + 24, 236 + 3 * 170.0)
     height = legend_y + 88
-    label = (f"Reduced costs of {n_rows} sources \u00d7 {n_cols} sinks; chosen pairs ringed")
+    label = (f"Reduced costs of {n_rows} sources \u00d7 {n_cols} sinks; chosen pairs ringed"
+             + ("; numbers: the extra cost of forcing a pair, or in a ring of forbidding it"
+                if m.prices is not None else ""))
     out = [_svg_open(width, height, label, standalone), _defs()]
     if standalone:
         out.append(_caption(m))
@@ -94,13 +96,14 @@ def _heatmap(m: _Model, standalone: bool) -> str:
             classes = "cell chosen" if chosen else "cell"
             tip = (f"{m.sources[i]} \u2192 {m.sinks[j]}: {'score' if m.maximize else 'cost'} "
                    f"{_num(float(m.cost[k]))}, reduced cost {_num(rc)}"
-                   + (f", flow {int(m.flow[k])}" if chosen else ""))
+                   + (f", flow {int(m.flow[k])}" if chosen else "")
+                   + _price_tip(m, k, chosen))
             if m.violation[k]:
                 tip += " \u2014 violates complementary slackness"
             out.append(f'<rect class="{classes}" x="{x:.1f}" y="{y:.1f}" width="{s - 1:.1f}" '
                        f'height="{s - 1:.1f}" fill="{fill}" {where} data-rc="{_num(rc)}">'
                        f"<title>{_esc(tip)}</title></rect>")
-            text = _num(rc)
+            text = _num(rc) if m.prices is None else _price_text(m, k, chosen)
             if show_numbers and len(text) <= 4:
                 marks.append(_text(x + (s - 1) / 2, y + s / 2 + 3.5, text, anchor="middle",
                                    size=9.5, fill="#ffffff" if dark else "#1f2933",
@@ -159,6 +162,26 @@ def _heatmap(m: _Model, standalone: bool) -> str:
         (box + 'fill="#ffffff" stroke="#c9c9c4"/>' + _cross(0, 0, 14, "key"),
          "breaks slackness"),
         (box + f'fill="{_UNKNOWN}"/>', "no potential given"),
+        *([(box + 'fill="#ffffff" stroke="#c9c9c4"/>' + _text(7, 11, "+", anchor="middle",
+                                                            size=10, fill="#1f2933"),
+            "number: override price")]
+          if m.prices is not None else []),
     ]))
     out.append("</svg>")
     return "".join(out)
+
+
+def _price_text(m: _Model, k: int, chosen: bool) -> str:
+    """The cell's number with prices: forbidding a chosen pair, else forcing it."""
+    assert m.prices is not None
+    value = float(m.prices[1][k] if chosen else m.prices[0][k])
+    return "\u2014" if math.isnan(value) else _num(value)
+
+
+def _price_tip(m: _Model, k: int, chosen: bool) -> str:
+    if m.prices is None:
+        return ""
+    word = "score lost" if m.maximize else "extra cost"
+    value = float(m.prices[1][k] if chosen else m.prices[0][k])
+    shown = "no plan serves the same hard demand" if math.isnan(value) else _num(value)
+    return f"; {word} to {'forbid' if chosen else 'force'} it: {shown}"

@@ -41,6 +41,8 @@ class _Model:
     reasons: dict[str, tuple[str, Any]] = field(default_factory=dict)
     unused: dict[str, int] = field(default_factory=dict)
     pi: np.ndarray = field(init=False)
+    #: (force_delta, forbid_delta) per arc, nan for null; only when the verifier proved them
+    prices: tuple[np.ndarray, np.ndarray] | None = None
 
     @property
     def places(self) -> list[str]:
@@ -115,7 +117,22 @@ def _model(body: Mapping[str, Any], verdict: Mapping[str, Any]) -> _Model:
     else:
         m.rc = np.zeros(0)
         m.violation = np.zeros(0, bool)
+    m.prices = _proven_prices(m, answer.get("prices"))
     return m
+
+
+#: The verifier's checks of override prices: all must pass before a price is drawn.
+_PRICE_CHECKS = ("price_rows", "price_distances", "force_delta", "forbid_delta")
+
+
+def _proven_prices(m: _Model, rows: Any) -> tuple[np.ndarray, np.ndarray] | None:
+    """Both prices per arc, when the answer has them and every price check passed."""
+    passed = {c.get("name") for c in m.verdict.get("checks", []) if c.get("passed") is True}
+    if not rows or not set(_PRICE_CHECKS) <= passed or len(rows) != len(m.tail):
+        return None
+    force = np.array([_float(r.get("force_delta")) for r in rows], np.float64)
+    forbid = np.array([_float(r.get("forbid_delta")) for r in rows], np.float64)
+    return force, forbid
 
 
 def _float(x: Any) -> float:

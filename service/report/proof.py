@@ -18,6 +18,7 @@ _CLAIMS = {
     "shortfall": ("hard_shortfall", "unmet_demand_policy", "shortfall_cut"),
     "bound": ("sense", "potentials", "dual_feasibility", "dual_objective"),
     "slackness": ("complementary_slackness",),
+    "prices": ("price_rows", "price_distances", "force_delta", "forbid_delta"),
 }
 _KNOWN = frozenset(name for names in _CLAIMS.values() for name in names)
 
@@ -155,4 +156,16 @@ def _proof_items(m: _Model) -> list[tuple[bool, str]]:
             "other checks it would make the allocation optimal; they did not all pass, so "
             "this answer is not shown to be optimal.",
             "that the allocation reaches the bound (complementary slackness)"))
+    if m.answer.get("prices"):
+        word = "score lost" if m.maximize else "extra cost"
+        items.append(_item(
+            m, "prices",
+            f"<b>Every override price is exact.</b> The {word} of forcing each pair (or of "
+            "forbidding a chosen one) is that of the best plan serving the same hard "
+            "demand: the verifier checked each against shortest-path distances in the "
+            "residual graph, exact both ways (no arc shortens them, and a real path meets "
+            "them), and each forbidding against a plan that routes the pair's units around "
+            "it." + (" The heat map writes them in the cells." if m.prices is not None
+                     else ""),
+            "that the override prices are exact"))
     return items
