@@ -70,7 +70,8 @@ def _delimiter(text: str) -> str:
 
 
 def _overrides(args: argparse.Namespace) -> dict[str, Any]:
-    found: dict[str, Any] = {"objective": args.objective, "unmet_demand": args.unmet_demand}
+    found: dict[str, Any] = {"objective": args.objective, "unmet_demand": args.unmet_demand,
+                             "alternatives": getattr(args, "alternatives", None)}
     if getattr(args, "prices", False):
         found["prices"] = True
     return {k: v for k, v in found.items() if v is not None}

@@ -92,6 +92,10 @@ def _add_problem_options(cmd: argparse.ArgumentParser) -> None:
     given.add_argument("--unmet-demand", choices=("minimize", "reject"),
                        help="minimize: meet as much hard demand as possible; reject: exit 2 "
                        "if any hard demand cannot be met (default: the file's, else minimize)")
+    given.add_argument("--alternatives", type=int, metavar="K",
+                       help="also ask for the K next-best plans (1 to 50), each certified; "
+                       "the table lists them with what each costs more and how it differs; "
+                       "replaces the file's field")
     table = cmd.add_argument_group("CSV cost tables")
     table.add_argument("--supply-column", default="supply", metavar="NAME",
                        help="header of the supply column ('' for none; default %(default)s)")

@@ -30,6 +30,7 @@ from service.cli.outcome import (
     summary_document,
     summary_line,
 )
+from service.cli.ranked import alternatives_lines
 from service.cli.sheets import allocation_csv, unmet_csv, unused_csv
 from service.cli.talk import (
     EXIT_ERROR,
@@ -88,6 +89,8 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
             else "least total cost plus penalties")
     lines.append(f"objective: {_num(answer['objective'])} ({what})")
     lines.append(f"units routed: {_num(answer.get('flow_value', flow))}")
+    lines.append("")
+    lines += alternatives_lines(problem, answer)
     lines.append(verdict_line)
     return "\n".join(lines) + "\n"
 

@@ -11,6 +11,7 @@ from service import __version__
 from service.report.model import _Model, _model
 from service.report.picture import _picture, _too_large_svg
 from service.report.proof import _checks, _failed, _proof_items, _verdict_sentence
+from service.report.ranked import alternatives_section
 from service.report.record import record_failed, record_section
 from service.report.style import FORMATS, TABLE_MAX_ROWS, _esc, _num, _plural
 from service.settings import Settings
@@ -302,6 +303,9 @@ def render_html(body: Mapping[str, Any], verdict: Mapping[str, Any],
     used = int((m.flow > 0).sum())
     parts.append(_table(["from", "to", "flow", "cost" if not m.maximize else "score",
                          "reduced cost"], _allocation_rows(m), {2, 3, 4}, total=used))
+    answer = body.get("answer")
+    if isinstance(answer, Mapping):
+        parts.append(alternatives_section(answer, checks, m.maximize, _table))
     if m.stray:
         parts.append(f'<p class="note">{_plural(len(m.stray), "row")} of the allocation '
                      "name no allowed arc and are not drawn: "
