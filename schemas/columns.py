@@ -67,11 +67,20 @@ def by_column(errors: dict[Any, Any]) -> dict[Any, Any]:
     return out
 
 
+def as_columns(value: Any) -> Any:
+    """A list of records in the columnar form: an array per key any record has, null where
+    a record lacks it; anything else (an object already, a bad value) as it is."""
+    if not isinstance(value, list) or not all(isinstance(r, dict) for r in value):
+        return value
+    keys = dict.fromkeys(k for r in value for k in r)
+    return {k: [r.get(k) for r in value] for k in keys}
+
+
 def as_records(value: Any) -> Any:
     """A table in the record form, whichever form it was sent in (for readers of small
     problems, such as the report: a large table is never turned into records)."""
     if not isinstance(value, dict):
         return value
     keys = [k for k, col in value.items() if isinstance(col, list)]
-    n = len(value[keys[0]]) if keys else 0
+    n = min((len(value[k]) for k in keys), default=0)
     return [{k: value[k][i] for k in keys if value[k][i] is not None} for i in range(n)]

@@ -10,7 +10,7 @@ from flask import Flask
 from werkzeug.exceptions import HTTPException
 
 from service.errors import PROBLEM_CONTENT_TYPE, ServiceError, problem_document
-from service.http import auth, observe
+from service.http import auth, encoding, observe
 from service.http.api import api_bp
 from service.http.body import json_response
 from service.http.pages import pages_bp
@@ -39,6 +39,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.register_blueprint(report_bp)
     # Request ids, the request log line and metrics wrap every view, errors included.
     observe.init_app(app, settings.metrics_enabled)
+    encoding.init_app(app)
 
     @app.errorhandler(ServiceError)
     def _service_error(e: ServiceError) -> Any:
@@ -52,7 +53,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     def _http_error(e: HTTPException) -> Any:
         status = e.code or 500
         detail = e.description or e.name
-        if status == 413:
+        if status == 413 and not isinstance(e, encoding.InflatedTooLarge):
             detail = (f"the body is larger than {settings.max_body_bytes} bytes "
                       "(setting MAX_BODY_BYTES)")
         doc = problem_document(status, e.name, detail)

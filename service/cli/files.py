@@ -77,6 +77,17 @@ def _overrides(args: argparse.Namespace) -> dict[str, Any]:
     return {k: v for k, v in found.items() if v is not None}
 
 
+def _in_form(args: argparse.Namespace, problem: dict[str, Any]) -> dict[str, Any]:
+    """``problem`` with its tables in the columnar form when --columnar asks for it."""
+    if not getattr(args, "columnar", False):
+        return problem
+    # imported here: the schemas bring numpy, which a remote solve does not otherwise need
+    from schemas.columns import as_columns
+    from schemas.problem import TABLES
+
+    return {k: as_columns(v) if k in TABLES else v for k, v in problem.items()}
+
+
 def _reject_constant(name: str) -> Any:
     raise ValueError(f"{name} is not a JSON number")
 
@@ -153,12 +164,13 @@ def _read_problem(args: argparse.Namespace, need_dict: bool, name: str, raw: byt
             table = read_cost_table(text, layout)
         except TableError as e:
             raise CliError(f"{name}: {e}") from None
-        problem = {**table.problem, **overrides}
+        problem = _in_form(args, {**table.problem, **overrides})
         rows, cols = table.shape
         note = (f"read {name}: {rows} sources x {cols} sinks, {table.allowed} of "
                 f"{rows * cols} pairs allowed")
         return _Problem(json.dumps(problem, separators=(",", ":")).encode(), problem, note)
-    if not overrides and not need_dict:
+    columnar = bool(getattr(args, "columnar", False))
+    if not overrides and not need_dict and not columnar:
         return _Problem(raw, None)
     try:
         parsed = _parse_json(raw)
@@ -167,9 +179,9 @@ def _read_problem(args: argparse.Namespace, need_dict: bool, name: str, raw: byt
     if not isinstance(parsed, dict):
         # Sent as it is: the service's 400 or 422 says what is wrong, as it would over HTTP.
         return _Problem(raw, None)
-    if not overrides:
+    if not overrides and not columnar:
         return _Problem(raw, parsed)
-    parsed.update(overrides)
+    parsed = _in_form(args, {**parsed, **overrides})
     return _Problem(json.dumps(parsed, separators=(",", ":")).encode(), parsed)
 
 
@@ -190,7 +202,8 @@ def _problem_with_answer(args: argparse.Namespace) -> dict[str, Any]:
         assert loaded.problem is not None     # a CSV table always becomes a dict
         body = loaded.problem
     else:
-        body = {**_read_json_object(args.file, "a problem"), **_overrides(args)}
+        body = _in_form(args, {**_read_json_object(args.file, "a problem"),
+                               **_overrides(args)})
     if args.answer is not None:
         if "answer" in body:
             raise CliError(f"{args.file} already holds an \"answer\"; leave out --answer")

@@ -48,6 +48,16 @@ def worst(codes: list[int]) -> int:
     return next((c for c in SEVERITY if c in codes), EXIT_OK)
 
 
+def records(table: Any) -> Any:
+    """A table of the problem as records, also when it was given in the columnar form."""
+    if not isinstance(table, dict):
+        return table
+    # imported here: the schemas bring numpy, which a remote solve does not otherwise need
+    from schemas.columns import as_records
+
+    return as_records(table)
+
+
 def _hard(entry: Mapping[str, Any], sink: Mapping[str, Any] | None) -> bool | None:
     if isinstance(entry.get("hard"), bool):
         return bool(entry["hard"])
@@ -59,7 +69,7 @@ def _hard(entry: Mapping[str, Any], sink: Mapping[str, Any] | None) -> bool | No
 def unmet_rows(problem: Mapping[str, Any] | None, answer: Mapping[str, Any]
                ) -> list[dict[str, Any]]:
     """``{id, amount, demand, hard}`` per unmet sink; None where the problem is unknown."""
-    sinks = {str(s.get("id")): s for s in (problem or {}).get("sinks", [])
+    sinks = {str(s.get("id")): s for s in records((problem or {}).get("sinks", []))
              if isinstance(s, dict)}
     rows = []
     for entry in answer.get("unmet", []):
@@ -73,7 +83,7 @@ def unmet_rows(problem: Mapping[str, Any] | None, answer: Mapping[str, Any]
 def unused_rows(problem: Mapping[str, Any] | None, answer: Mapping[str, Any]
                 ) -> list[dict[str, Any]]:
     """``{id, amount, supply}`` per source with supply left; None where unknown."""
-    sources = {str(s.get("id")): s for s in (problem or {}).get("sources", [])
+    sources = {str(s.get("id")): s for s in records((problem or {}).get("sources", []))
                if isinstance(s, dict)}
     rows = []
     for entry in answer.get("unused", []):

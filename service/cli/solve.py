@@ -26,6 +26,7 @@ from service.cli.files import (
 from service.cli.outcome import (
     Outcome,
     plan_outcome,
+    records,
     reply_outcome,
     summary_document,
     summary_line,
@@ -51,7 +52,8 @@ IDEMPOTENCY_HEADER = "Idempotency-Key"
 def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
                   verdict_line: str) -> str:
     """The answer as aligned text: allocation, unmet, unused, objective, verdict."""
-    sinks = {str(s.get("id")): s for s in (problem or {}).get("sinks", [])}
+    sinks = {str(s.get("id")): s for s in records((problem or {}).get("sinks", []))
+             if isinstance(s, dict)}
     maximize = (problem or {}).get("objective") == "max"
     lines = [f"optimal allocation ({answer.get('shape', '?')}, solver "
              f"{answer.get('solver', '?')})", ""]

@@ -19,6 +19,8 @@ The cost table is the shape a spreadsheet already has::
 
 Nothing here touches the network model: the result is an ordinary JSON problem that the
 service checks like any other, so the CSV path cannot accept what the JSON path refuses.
+Its sources and sinks are built in the columnar form (an array per field), as a large
+table is best sent.
 """
 
 from __future__ import annotations
@@ -63,7 +65,7 @@ class CostTable:
 
     @property
     def shape(self) -> tuple[int, int]:
-        return len(self.problem["sources"]), len(self.problem["sinks"])
+        return len(self.problem["sources"]["id"]), len(self.problem["sinks"]["id"])
 
 
 def _where(line: int, column: int) -> str:
@@ -166,7 +168,11 @@ def _read_cost_table(text: str, layout: TableLayout) -> CostTable:
         raise TableError(f"line {header_line}: the first row names no sinks (it should be "
                          "a corner cell, then one sink id per column)")
     seen: dict[str, str] = {}
-    sinks: list[dict[str, Any]] = []
+    # the problem is built in the columnar form: one array per field (README, "The
+    # columnar form"); arrays nobody fills are left out at the end
+    sinks: dict[str, list[Any]] = {"id": [], "demand": [None] * len(sink_cols),
+                                   "penalty": [None] * len(sink_cols)}
+    sources: dict[str, list[Any]] = {"id": [], "supply": []}
     for k in sink_cols:
         sid = header[k]
         if not sid:
@@ -174,9 +180,9 @@ def _read_cost_table(text: str, layout: TableLayout) -> CostTable:
         if sid in seen:
             raise TableError(f"{_where(header_line, k + 1)}: id {sid!r} appears twice")
         seen[sid] = _where(header_line, k + 1)
-        sinks.append({"id": sid})
+        sinks["id"].append(sid)
 
-    table = CostTable({"sources": [], "sinks": sinks, "costs": []})
+    table = CostTable({"sources": sources, "sinks": sinks, "costs": []})
     special: dict[str, list[int]] = {name: [] for name in (layout.demand_row,
                                                            layout.penalty_row) if name}
     width = len(header)
@@ -199,15 +205,19 @@ def _read_cost_table(text: str, layout: TableLayout) -> CostTable:
             raise TableError(f"{_where(line, 1)}: id {label!r} appears twice "
                              f"(first at {seen[label]})")
         seen[label] = _where(line, 1)
-        source: dict[str, Any] = {"id": label}
-        if supply_col is not None and cells[supply_col]:
-            source["supply"] = _count(cells[supply_col], line, supply_col + 1, "supply")
+        sources["id"].append(label)
+        sources["supply"].append(
+            _count(cells[supply_col], line, supply_col + 1, "supply")
+            if supply_col is not None and cells[supply_col] else None)
         row: list[int | float | None] = []
         for k in sink_cols:
             row.append(_number(cells[k], line, k + 1) if cells[k] else None)
         table.allowed += sum(c is not None for c in row)
-        table.problem["sources"].append(source)
         table.problem["costs"].append(row)
+    for columns in (sources, sinks):
+        for key in [k for k, col in columns.items() if k != "id" and
+                    all(v is None for v in col)]:
+            del columns[key]
     # No source rows is a day on which nobody is available: sent as it is, the service
     # decides (every hard demand then stays unmet). No sinks is refused above instead:
     # a header of one cell is far more often a table cut with the wrong separator.
@@ -216,18 +226,18 @@ def _read_cost_table(text: str, layout: TableLayout) -> CostTable:
 
 def _read_sink_row(label: str, layout: TableLayout, cells: Sequence[str], line: int,
                    sink_cols: Sequence[int], supply_col: int | None,
-                   sinks: list[dict[str, Any]]) -> None:
+                   sinks: dict[str, list[Any]]) -> None:
     if supply_col is not None and cells[supply_col]:
         raise TableError(f"{_where(line, supply_col + 1)}: the {label!r} row has no "
                          "supply; leave this cell empty")
-    for sink, k in zip(sinks, sink_cols, strict=True):
+    for j, k in enumerate(sink_cols):
         if not cells[k]:
             continue                    # empty: demand 1, or hard demand
         if label == layout.demand_row:
-            sink["demand"] = _count(cells[k], line, k + 1, "demand")
+            sinks["demand"][j] = _count(cells[k], line, k + 1, "demand")
         else:
             penalty = _number(cells[k], line, k + 1)
             if penalty < 0:
                 raise TableError(f"{_where(line, k + 1)}: a penalty must be >= 0, "
                                  f"got {cells[k]!r}")
-            sink["penalty"] = penalty
+            sinks["penalty"][j] = penalty

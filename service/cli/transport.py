@@ -4,9 +4,12 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import ipaddress
 import os
 import sys
+import zlib
 from collections.abc import Callable, Mapping
+from urllib.parse import urlsplit
 
 import requests
 
@@ -25,10 +28,51 @@ from service.cli.talk import (
 
 #: The policy the command line uses; tests replace it to inject the sleep and the dice.
 DEFAULT_POLICY = RetryPolicy()
+#: Bodies from this size on go gzip-compressed to a server on another machine (--gzip).
+GZIP_BYTES = 1_000_000
+#: gzip level of bodies: 1 packs JSON to about a fifth at several times the speed of 6.
+GZIP_LEVEL = 1
+
+
+def on_this_machine(base_url: str) -> bool:
+    """Whether ``base_url`` names a loopback host, where compressing saves no time."""
+    host = urlsplit(base_url).hostname or ""
+    if host == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host).is_loopback
+    except ValueError:
+        return False
+
+
+def gzip_wanted(choice: bool | None, base_url: str | None, size: int) -> bool:
+    """--gzip (True), --no-gzip (False), or by default: a body of GZIP_BYTES or more sent
+    to another machine (``base_url`` None is this process)."""
+    if choice is not None:
+        return choice
+    return base_url is not None and size >= GZIP_BYTES and not on_this_machine(base_url)
+
+
+def _gzipping(post: Post, choice: bool | None, base_url: str | None) -> Post:
+    """``post`` sending each body gzip-compressed (Content-Encoding) where
+    :func:`gzip_wanted` says so; compressed once, however often it is retried."""
+
+    def send(path: str, body: bytes, headers: Mapping[str, str] | None = None) -> Reply:
+        if not gzip_wanted(choice, base_url, len(body)):
+            return post(path, body, headers)
+        packer = zlib.compressobj(GZIP_LEVEL, zlib.DEFLATED, 16 + zlib.MAX_WBITS)
+        return post(path, packer.compress(body) + packer.flush(),
+                    {**(headers or {}), "Content-Encoding": "gzip"})
+
+    return send
 
 
 def _http_post(base_url: str, timeout: float, token: Secret | None = None) -> Post:
-    """POST to ``base_url``: :class:`Unreachable` when no HTTP answer comes back at all."""
+    """POST to ``base_url``: :class:`Unreachable` when no HTTP answer comes back at all.
+
+    Answers come back gzip-compressed when the server does so: requests asks for it and
+    inflates them.
+    """
     base = base_url.rstrip("/")
     shown = shown_url(base)
     fixed = {"Content-Type": "application/json"}
@@ -93,13 +137,15 @@ def _target(args: argparse.Namespace) -> tuple[Post, str | None]:
     In this process there is no connection to lose, so nothing is retried: a 503 with
     Retry-After from the app itself ends the command at once with exit 4.
     """
+    gzip = getattr(args, "gzip", None)
     if args.local:
-        return _local_post(), None
+        return _gzipping(_local_post(), gzip, None), None
     base = (args.url or os.environ.get(URL_ENV) or DEFAULT_URL).rstrip("/")
     retries = getattr(args, "retries", DEFAULT_POLICY.retries)
     policy = dataclasses.replace(DEFAULT_POLICY, retries=retries)
-    post = _http_post(base, args.timeout, resolve_token(args))
-    return retrying(post, policy, _say_unless_quiet(args)), shown_url(base)
+    post = retrying(_http_post(base, args.timeout, resolve_token(args)), policy,
+                    _say_unless_quiet(args))
+    return _gzipping(post, gzip, base), shown_url(base)
 
 
 def _poster(args: argparse.Namespace) -> Post:

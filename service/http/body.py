@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections import deque
+from contextlib import suppress
 from typing import Any
 
 import orjson
@@ -10,6 +12,12 @@ from werkzeug.exceptions import BadRequest, HTTPException, RequestEntityTooLarge
 
 from service.errors import MalformedBody, UnsupportedMediaType
 from service.http.duplicates import duplicate_keys
+from service.http.encoding import (
+    InflatedTooLarge,
+    compressed_chunks,
+    inflate,
+    request_coding,
+)
 from service.settings import Settings
 
 
@@ -45,12 +53,24 @@ def json_body() -> Any:
 
 
 def _read_body() -> bytes:
-    """The whole body, or 413 when it is over MAX_BODY_BYTES.
+    """The whole body, or 413 when it is over MAX_BODY_BYTES (inflated, when it came
+    with a Content-Encoding: see service.http.encoding).
 
     Werkzeug answers 413 itself when Content-Length says too much; a chunked body has no
     length, and its stream merely stops at the limit, so read one byte past it to know.
     """
     limit = current_settings().max_body_bytes
+    coding = request_coding()
+    if coding is not None:
+        chunks = compressed_chunks(limit)
+        try:
+            return inflate(chunks, coding, limit)
+        except InflatedTooLarge:
+            # read the rest as it is (at most the limit again) so that the client, still
+            # sending, is not cut off before it reads the 413
+            with suppress(HTTPException):
+                deque(chunks, maxlen=0)
+            raise
     try:
         if request.content_length is not None:
             return request.get_data(cache=False)   # 413 here when over the limit

@@ -538,7 +538,7 @@ def test_progress_names_the_url(capsys, tmp_path):
     code, _, err = _run(capsys, "solve", _csv(tmp_path), "--url", f"http://127.0.0.1:{port}/",
                         "--timeout", "5", "--progress")
     assert code == 4
-    assert f"posting 213 bytes to http://127.0.0.1:{port}/v1/solve" in err
+    assert f"posting 181 bytes to http://127.0.0.1:{port}/v1/solve" in err
 
 
 def test_quiet_and_progress_together_are_a_usage_error(capsys, tmp_path):

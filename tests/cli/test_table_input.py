@@ -104,9 +104,10 @@ def test_a_supply_with_digit_separators_is_refused(capsys, tmp_path):
 def test_a_table_without_source_rows_is_a_day_with_no_sources():
     # Sent as it is: the service decides about an empty day (every hard demand unmet).
     table = read_cost_table(",ticket-1,ticket-2\ndemand,2,1\npenalty,,30\n")
-    assert table.problem == {"sources": [], "costs": [],
-                             "sinks": [{"id": "ticket-1", "demand": 2},
-                                       {"id": "ticket-2", "demand": 1, "penalty": 30}]}
+    # built in the columnar form (README, "The columnar form"), unfilled arrays left out
+    assert table.problem == {"sources": {"id": []}, "costs": [],
+                             "sinks": {"id": ["ticket-1", "ticket-2"], "demand": [2, 1],
+                                       "penalty": [None, 30]}}
 
 
 def test_a_repeated_key_in_a_json_file_is_not_collapsed_before_it_is_sent(capsys, tmp_path):

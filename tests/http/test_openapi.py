@@ -41,7 +41,7 @@ from schemas.pointers import iter_wire_keys
 from schemas.problem import OBJECTIVES, UNMET_POLICIES, ProblemSchema
 from schemas.tables import RecordList
 from service.app import create_app
-from service.http import observe
+from service.http import encoding, observe
 from service.settings import Settings
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -743,6 +743,19 @@ def test_every_operation_accepts_a_request_id() -> None:
     parameter = SPEC["components"]["parameters"]["RequestId"]
     assert (parameter["name"], parameter["in"]) == (observe.REQUEST_ID_HEADER, "header")
     assert parameter["schema"]["maxLength"] == observe.REQUEST_ID_MAX
+
+
+def test_every_post_documents_the_content_codings() -> None:
+    for path in POST_PATHS:
+        refs = [p.get("$ref") for p in SPEC["paths"][path]["post"]["parameters"]]
+        assert "#/components/parameters/ContentEncoding" in refs, path
+        headers = SPEC["paths"][path]["post"]["responses"]["200"]["headers"]
+        assert headers["Content-Encoding"] == {"$ref": "#/components/headers/ContentEncoding"}
+    parameter = SPEC["components"]["parameters"]["ContentEncoding"]
+    assert set(parameter["schema"]["enum"]) == {*encoding._CODINGS, "identity"}
+    assert encoding.ACCEPTED_CODINGS in parameter["description"].replace("\n", " ")
+    assert str(encoding.MIN_GZIP_BYTES) in SPEC["components"]["headers"]["ContentEncoding"][
+        "description"]
 
 
 def test_every_response_documents_the_request_id_header() -> None:

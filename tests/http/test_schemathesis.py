@@ -105,7 +105,9 @@ def _ran_out_of_time(case: Any, response: Any) -> bool:
 @schema.parametrize()
 @SETTINGS
 def test_every_answer_conforms_to_the_contract(case):
-    response = case.call()
+    # the in-process transport hands over the bytes as sent and does not inflate a gzip
+    # answer, which the default Accept-Encoding of its requests would ask for
+    response = case.call(headers={"Accept-Encoding": "identity"})
     meta = case.meta
     phase = meta.phase.name.value if meta is not None else "explicit"
     mode = meta.generation.mode.value if meta is not None else "positive"
@@ -127,7 +129,7 @@ VERIFY = schema["/v1/verify"]["POST"]
 @given(problem=problems())
 def test_answers_of_every_shape_conform_to_the_contract(problem):
     case = SOLVE.Case(body=problem, media_type="application/json")
-    response = case.call()
+    response = case.call(headers={"Accept-Encoding": "identity"})
     SENT[("POST /v1/solve", "shapes", "positive", response.status_code)] += 1
     case.validate_response(response, checks=CHECKS)
     if response.status_code != 200:
@@ -135,7 +137,7 @@ def test_answers_of_every_shape_conform_to_the_contract(problem):
     # The answer as the caller got it goes back to /v1/verify: that answer conforms too.
     check = VERIFY.Case(body={**problem, "answer": response.json()},
                         media_type="application/json")
-    verdict = check.call()
+    verdict = check.call(headers={"Accept-Encoding": "identity"})
     SENT[("POST /v1/verify", "shapes", "positive", verdict.status_code)] += 1
     check.validate_response(verdict, checks=CHECKS)
     assert verdict.json()["valid"] is True
