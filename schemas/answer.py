@@ -86,6 +86,16 @@ class PriceRowSchema(Schema):
     arc = fields.Integer(metadata={"description": "index into the request's arcs"})
 
 
+class BottleneckSchema(Schema):
+    """The threshold of ``"objective": "bottleneck"`` and the cut proving no cheaper one."""
+
+    threshold = Number(required=True, allow_none=True, bound=MAX_ANSWER_VALUE, metadata={
+        "description": "the largest cost of a used pair; null when no pair is needed"})
+    cut = fields.Nested(CutSchema, required=True, allow_none=True, metadata={
+        "description": "a cut in the network of the pairs strictly cheaper than the "
+                       "threshold, proving a hard shortfall above hard_shortfall there"})
+
+
 class CertificateSchema(Schema):
     """Dual potentials and the cut; see README, 'The certificate'."""
 
@@ -95,6 +105,8 @@ class CertificateSchema(Schema):
     hard_shortfall = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
     cut = fields.Nested(CutSchema, required=True)
     dual_objective = Number(required=True, bound=MAX_ANSWER_VALUE)
+    bottleneck = fields.Nested(BottleneckSchema, metadata={
+        "description": "with objective bottleneck only (README, 'The certificate')"})
     prices = fields.Dict(metadata={"description": "the proof of the override prices: "
                                    "distance rows and trees, reroutes (README, 'The "
                                    "certificate'); checked when the answer has prices"})

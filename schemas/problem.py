@@ -10,7 +10,7 @@ from marshmallow import RAISE, Schema, ValidationError, fields, validate, valida
 from schemas.fields import Number, StrictBoolean
 from schemas.tables import CostMatrix, RecordList
 
-OBJECTIVES = ("min", "max")
+OBJECTIVES = ("min", "max", "bottleneck")
 UNMET_POLICIES = ("minimize", "reject")
 #: Most next-best plans a request may ask for (README, "Ranked alternatives").
 MAX_ALTERNATIVES = 50
@@ -107,6 +107,10 @@ class ProblemSchema(Schema):
                                   "arrays)", "costs")
         if "nodes" in given and "arcs" not in given:
             raise ValidationError("nodes need arcs to reach them", "nodes")
+        if original.get("objective") == "bottleneck" and original.get("prices") is True:
+            raise ValidationError("prices are not offered with the bottleneck objective, whose "
+                                  "plan may use only the pairs at or below its threshold",
+                                  "prices")
 
 
 def declared_ids(data: dict[str, Any]) -> list[str]:

@@ -33,8 +33,11 @@ _BLOCK = 512
 
 
 def _reasons_differ(net: Network, rows: Any, index: dict[str, int], arc: np.ndarray,
-                    x: np.ndarray, spare: np.ndarray, pi: np.ndarray) -> str | None:
-    """What is wrong with the reasons the unmet rows give, or None (also when none do)."""
+                    x: np.ndarray, spare: np.ndarray, pi: np.ndarray,
+                    within: Network) -> str | None:
+    """What is wrong with the reasons the unmet rows give, or None (also when none do).
+    ``within``: the network whose residual graph counts (``net`` itself, or a bottleneck's
+    pairs at or below the threshold)."""
     if "reason" not in rows.present:
         return None
     ids = rows.columns["id"]
@@ -53,7 +56,7 @@ def _reasons_differ(net: Network, rows: Any, index: dict[str, int], arc: np.ndar
     sink = where[given]
     node = sink + off
     fed = _search(net, net.supply > 0, None, None)[node]
-    open_ = _search(net, spare > 0, arc, x)[node]
+    open_ = _search(within, spare > 0, arc, x)[node]
     hard = ~net.soft[sink]
     stuck = _first(fed & open_ & hard)
     if stuck is not None:

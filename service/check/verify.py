@@ -21,6 +21,7 @@ from typing import Any
 import numpy as np
 import orjson
 
+from service.check.bottleneck import _threshold
 from service.check.checks import _Checks, _result
 from service.check.distances import residual_arcs
 from service.check.duals import (
@@ -154,6 +155,9 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks) -> Non
                "/unmet_demand is minimize: hard demand may be left unmet")
     checks.add("shortfall_cut", _cut_differs(net, cert["cut"], index, shortfall),
                f"no flow can leave less than {shortfall} units of hard demand unmet")
+    # the cost stage of a bottleneck answer optimises over the pairs at or below its
+    # threshold: its potentials are checked there
+    within = _threshold(net, cert, arc, x, index, checks)
 
     # -- least cost: the potentials -----------------------------------------------------
     pi, wrong = _potentials(net, cert, index)
@@ -169,14 +173,14 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks) -> Non
     v_tail, v_head, v_cost, v_cap, v_x = _virtual_arcs(net, unmet, sent, shortfall, S, T, P)
     v_reduced = v_cost - pi[v_tail] + pi[v_head]
     u_reduced = cost - pi[tail] + pi[head]
-    bad_dual_arc = _unbounded_negative(net, pi)
+    bad_dual_arc = _unbounded_negative(within, pi)
     checks.add("dual_feasibility", None if bad_dual_arc is None else
                f"unbounded arc {bad_dual_arc[0]} has negative reduced cost "
                f"{_show(bad_dual_arc[1], scale)}", "no unbounded arc has a negative reduced cost")
     bad_v = _first(((v_reduced > 0) & (v_x > 0)) | ((v_reduced < 0) & (v_x < v_cap)))
     # a row of flow 0 says nothing: only arcs that carry flow need a reduced cost <= 0
     bad_u = _first((u_reduced > 0) & (x > 0))
-    saturated = _bounded_below_capacity(net, pi, arc, x)
+    saturated = _bounded_below_capacity(within, pi, arc, x)
     if bad_v is not None:
         labels = list(ids) + list(_VIRTUAL)
         slack = (f"arc {labels[v_tail[bad_v]]} -> {labels[v_head[bad_v]]} has reduced cost "
@@ -193,7 +197,7 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks) -> Non
                "positive reduced cost: no flow; negative: at capacity")
     demand = net.total_demand
     dual = (demand * int(pi[S] - pi[T]) - _dot(v_cap, np.maximum(0, -v_reduced))
-            - _bounded_dual_term(net, pi))
+            - _bounded_dual_term(within, pi))
     reported_dual = cert["dual_objective"]
     if dual != primal:
         bad_dual = (f"dual objective {_show(sign * dual, scale)} differs from the cost "
@@ -204,7 +208,7 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks) -> Non
         bad_dual = None
     checks.add("dual_objective", bad_dual, "dual objective equals the objective")
     checks.add("unmet_reasons", _reasons_differ(net, answer["unmet"], index, arc, x, unused,
-                                                pi),
+                                                pi, within),
                "each reason given for unmet demand follows the rule")
     if answer.get("prices") is not None:
         _check_prices(checks, net, answer, arc, x, pi,

@@ -86,9 +86,11 @@ def _add_problem_options(cmd: argparse.ArgumentParser) -> None:
     given.add_argument("--input", choices=("json", "csv"),
                        help="how to read FILE (default: csv for a name ending in .csv, "
                        "else json)")
-    given.add_argument("--objective", choices=("min", "max"),
-                       help="min: least total cost; max: greatest total score (default: "
-                       "the JSON file's, else min); replaces the file's field")
+    given.add_argument("--objective", choices=("min", "max", "bottleneck"),
+                       help="min: least total cost; max: greatest total score; bottleneck: "
+                       "the shortest longest trip (least largest cost of a used pair), then "
+                       "least cost (default: the JSON file's, else min); replaces the "
+                       "file's field")
     given.add_argument("--columnar", action="store_true",
                        help="send sources, sinks, nodes and arcs as objects of arrays, one "
                        "per field (far quicker to read for large problems; same answer)")

@@ -74,8 +74,8 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
             return "hard demand"
         return f"soft, penalty {_num(sink['penalty'])} per unit"
 
-    unmet = [("sink", "unmet", "kind")] + [(str(u["id"]), _num(u["amount"]), kind(str(u["id"])))
-                                            for u in answer["unmet"]]
+    unmet = [("sink", "unmet", "kind", "why it waits")] + [
+        (str(u["id"]), _num(u["amount"]), kind(str(u["id"])), _why(u)) for u in answer["unmet"]]
     lines.append("unmet demand:" + ("" if answer["unmet"] else " none"))
     if answer["unmet"]:
         lines += _table(unmet, frozenset({1}))
@@ -90,6 +90,12 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
     what = ("greatest total score less penalties" if maximize
             else "least total cost plus penalties")
     lines.append(f"objective: {_num(answer['objective'])} ({what})")
+    bottleneck = answer.get("certificate", {}).get("bottleneck")
+    if bottleneck is not None:
+        theta = bottleneck.get("threshold")
+        lines.append("longest trip (bottleneck threshold): " + (
+            "none, no pair is needed" if theta is None else
+            f"{_num(theta)}, the least possible; a cut proves no cheaper one serves as much"))
     lines.append(f"units routed: {_num(answer.get('flow_value', flow))}")
     lines.append("")
     lines += alternatives_lines(problem, answer)
@@ -116,6 +122,13 @@ def _cheapest_overrides(prices: list[dict[str, Any]], maximize: bool) -> list[st
     if not found:
         return ["", "cheapest overrides: none possible with the same hard demand served"]
     return ["", head, *_table(rows, frozenset({3}))]
+def _why(row: dict[str, Any]) -> str:
+    """Why an unmet sink waits, in words (README, "Why a sink waits")."""
+    reason = row.get("reason")
+    if reason == "penalty":
+        return f"penalty (serving costs at least {_num(row.get('reduced_cost', 0))} more)"
+    return {"capacity": "capacity (whoever could serve it is full)",
+            "no-eligible-source": "no eligible source"}.get(str(reason), "")
 
 
 def _check_answer(post: Post, where: str | None, problem: dict[str, Any] | None,

@@ -79,7 +79,7 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
         penalty=np.where(penalty_present, _scaled(penalty, scale), 0),
         soft=penalty_present.copy(), dense=dense, arc_list=arc_list,
         maximize=sign < 0, reject_unmet=data["unmet_demand"] == "reject", cost_scale=scale,
-        data=_carried(groups),
+        data=_carried(groups), bottleneck=data["objective"] == "bottleneck",
     )
 
 

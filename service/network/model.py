@@ -71,6 +71,8 @@ class Network:
     maximize: bool
     reject_unmet: bool
     cost_scale: int
+    #: ``"objective": "bottleneck"`` (costs as given, like ``min``)
+    bottleneck: bool = False
     #: the ``data`` objects of the request by id, in numbering order; never read by a solver
     data: dict[str, Any] = field(default_factory=dict)
 

@@ -129,6 +129,11 @@ def _answer_facts(m: _Model) -> list[tuple[str, str]]:
         ("unused supply", str(sum(m.unused.values()))),
         ("hard shortfall", _esc(_num(cert.get("hard_shortfall")))),
     ]
+    bottleneck = cert.get("bottleneck")
+    if isinstance(bottleneck, dict):
+        theta = bottleneck.get("threshold")
+        items.append(("longest trip (bottleneck threshold)" + said,
+                      "none: no pair is needed" if theta is None else _esc(_num(theta))))
     if a.get("shape") or a.get("solver"):
         items.append(("solved as", _esc(f"{a.get('shape', '?')} by {a.get('solver', '?')}")))
     return items

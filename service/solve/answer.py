@@ -63,10 +63,10 @@ def _within_range(net: Network, top: int) -> None:
 
 
 def _unmet_rows(net: Network, flow: Flow, short: np.ndarray, idle: np.ndarray,
-                pi: np.ndarray) -> list[dict[str, Any]]:
+                pi: np.ndarray, within: Network | None) -> list[dict[str, Any]]:
     """One row per sink left short: amount, hard or soft, and why it waits."""
     short_at = np.flatnonzero(short)
-    reasons, reduced = waiting_reasons(net, flow, short, idle, pi)
+    reasons, reduced = waiting_reasons(net, flow, short, idle, pi, within=within)
     prices = _values(net, reduced) if PENALTY in reasons else []
     rows = []
     for k, (i, hard, why) in enumerate(zip(short_at.tolist(), (~net.soft[short_at]).tolist(),
@@ -79,8 +79,13 @@ def _unmet_rows(net: Network, flow: Flow, short: np.ndarray, idle: np.ndarray,
     return rows
 
 
-def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[str, Any]:
-    """The answer document (plain dicts and lists, ready for JSON)."""
+def build_answer(net: Network, solution: Solution, cert: Certificate, *,
+                 within: Network | None = None) -> dict[str, Any]:
+    """The answer document (plain dicts and lists, ready for JSON).
+
+    ``within``: the network the last stage optimised when it is not ``net`` itself (the
+    pairs at or below a bottleneck threshold); the reasons' residual graph is its.
+    """
     ext, xv, pi = cert.ext, cert.virtual_flow, cert.potential
     ids = net.ids
     flow = solution.flow
@@ -118,7 +123,7 @@ def build_answer(net: Network, solution: Solution, cert: Certificate) -> dict[st
         "objective": _value(net, sign * cert.primal),
         "flow_value": int(xv[ext.blocks["supply"]].sum()),
         "allocation": allocation,
-        "unmet": _unmet_rows(net, flow, short, idle, pi),
+        "unmet": _unmet_rows(net, flow, short, idle, pi, within),
         "unused": [{"id": ids[i], "amount": int(idle[i])}
                    for i in np.flatnonzero(idle).tolist()],
         "certificate": {

@@ -12,6 +12,7 @@ import logging
 import time
 from collections.abc import Iterator
 from contextlib import contextmanager
+from functools import partial
 from typing import Any
 
 from marshmallow import ValidationError
@@ -25,6 +26,7 @@ from service.settings import Settings
 from service.solve import dispatch
 from service.solve.alternatives import alternatives_answer
 from service.solve.answer import build_answer
+from service.solve.bottleneck import solve_bottleneck, threshold_certificate
 from service.solve.certificate import certify
 from service.solve.deadline import deadline
 from service.solve.prices_answer import add_prices
@@ -54,6 +56,10 @@ def solve_body(body: Any, settings: Settings,
     with request_scope(), deadline(time_limit(body, settings), "solving this problem"):
         data = clock.run("validate", _load, _problem_schema, body)
         net = clock.run("normalise", build_network, data, settings)
+        if net.bottleneck:
+            answer = _solve_bottleneck(net, clock)
+            clock.run("self_verify", self_check, net, answer)
+            return answer
         solution = clock.run("solve", dispatch.solve, net)
         cert = clock.run("certify", certify, net, solution)
         answer = clock.run("answer", build_answer, net, solution, cert)
@@ -65,6 +71,17 @@ def solve_body(body: Any, settings: Settings,
             ranked = clock.run("alternatives", rank, net, cert, solution.flow, k)
             answer.update(alternatives_answer(net, solution, cert, ranked, k))
         clock.run("self_verify", self_check, net, answer, data.get("alternatives"))
+    return answer
+
+
+def _solve_bottleneck(net: Network, clock: _Clock) -> dict[str, Any]:
+    """The three stages of ``"objective": "bottleneck"``; the last one is certified on the
+    pairs at or below the threshold (:mod:`service.solve.bottleneck`)."""
+    result = clock.run("solve", solve_bottleneck, net)
+    cert = clock.run("certify", certify, result.within, result.solution)
+    answer = clock.run("answer", partial(build_answer, within=result.within), net,
+                       result.solution, cert)
+    answer["certificate"]["bottleneck"] = threshold_certificate(net, result)
     return answer
 
 

@@ -34,19 +34,22 @@ _ROWS = 256
 
 
 def waiting_reasons(net: Network, flow: Flow, short: np.ndarray, spare: np.ndarray,
-                    pi: np.ndarray) -> tuple[list[str], np.ndarray]:
+                    pi: np.ndarray, *, within: Network | None = None
+                    ) -> tuple[list[str], np.ndarray]:
     """(reason per short sink, min-form reduced cost per short sink) in sink order of
     ``np.flatnonzero(short)``; the reduced cost means something for ``penalty`` only.
 
     ``short`` is the unmet demand per sink, ``spare`` the unused supply per source, ``pi``
-    the certificate's potentials (user nodes, then super-source, super-sink, pool).
+    the certificate's potentials (user nodes, then super-source, super-sink, pool);
+    ``within`` the network whose residual graph counts, when not ``net`` (a bottleneck's
+    pairs at or below the threshold).
     """
     waiting = np.flatnonzero(short)
     if not len(waiting):
         return [], np.zeros(0, np.int64)
     off = net.sink_offset
     eligible = _reached(net, net.supply > 0, None)[off + waiting]
-    servable = _reached(net, spare > 0, flow)[off + waiting]
+    servable = _reached(within or net, spare > 0, flow)[off + waiting]
     reasons = [NO_SOURCE if not e else CAPACITY if not s else PENALTY
                for e, s in zip(eligible.tolist(), servable.tolist(), strict=True)]
     reduced = pi[net.n_user] - pi[off + waiting] - net.penalty[waiting]

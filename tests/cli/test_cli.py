@@ -674,3 +674,23 @@ def test_report_of_a_file_that_is_not_json_exits_1(capsys, tmp_path):
     code, _, err = _run(capsys, "report", str(path))
     assert code == 1
     assert "not valid JSON" in err
+
+
+def test_objective_bottleneck_shows_the_threshold_and_the_reasons(capsys, tmp_path):
+    # worked by hand: min pairs a-x (1) and b-y (100); bottleneck pairs a-y and b-x (60
+    # each), the longest trip 60; the soft ticket z is reachable only over a 90 trip, above
+    # the threshold, so within it whoever could serve it is full. Common practice, no source.
+    problem = {"sources": [{"id": "a"}, {"id": "b"}, {"id": "c"}],
+               "sinks": [{"id": "x"}, {"id": "y"}, {"id": "z", "penalty": 500}],
+               "costs": [[1, 60, None], [60, 100, None], [None, None, 90]]}
+    path = _write(tmp_path, problem)
+    code, out, err = _run(capsys, "solve", path, "--local", "--objective", "bottleneck")
+    assert code == 0, err
+    answer = json.loads(out)
+    assert answer["certificate"]["bottleneck"]["threshold"] == 60
+    assert answer["unmet"] == [{"id": "z", "amount": 1, "hard": False, "reason": "capacity"}]
+    code, out, err = _run(capsys, "solve", path, "--local", "--objective", "bottleneck",
+                          "--format", "table")
+    assert code == 0, err
+    assert "longest trip (bottleneck threshold): 60" in out
+    assert "capacity (whoever could serve it is full)" in out
