@@ -107,10 +107,12 @@ class ProblemSchema(Schema):
                                   "arrays)", "costs")
         if "nodes" in given and "arcs" not in given:
             raise ValidationError("nodes need arcs to reach them", "nodes")
-        if original.get("objective") == "bottleneck" and original.get("prices") is True:
-            raise ValidationError("prices are not offered with the bottleneck objective, whose "
-                                  "plan may use only the pairs at or below its threshold",
-                                  "prices")
+        if original.get("objective") == "bottleneck":
+            for extra in ("prices", "alternatives"):
+                if original.get(extra) not in (None, False, 0):
+                    raise ValidationError(f"{extra} are not offered with the bottleneck "
+                                          "objective, whose plan may use only the pairs at or "
+                                          "below its threshold", extra)
 
 
 def declared_ids(data: dict[str, Any]) -> list[str]:

@@ -184,3 +184,13 @@ def test_the_longest_trip_is_shortened_at_a_cost(solve: Any) -> None:
     assert plain["objective"] == 101 and short["objective"] == 120
     assert short["certificate"]["bottleneck"]["threshold"] == 60
     assert short["certificate"]["bottleneck"]["cut"]["demand"] == 2
+
+
+@pytest.mark.parametrize(("extra", "value"), [("prices", True), ("alternatives", 2)])
+def test_bottleneck_refuses_controls_it_does_not_offer(solve: Any, extra: str,
+                                                       value: Any) -> None:
+    problem = {"sources": [{"id": "a"}], "sinks": [{"id": "x"}], "costs": [[1]],
+               "objective": "bottleneck", extra: value}
+    status, body = solve(problem)
+    assert status == 422
+    assert [e["pointer"] for e in body["errors"]] == [f"/{extra}"]
