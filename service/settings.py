@@ -155,7 +155,8 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("MAX_ID_LENGTH", 200, "longest id, in characters", _whole),
     Setting("MAX_PRICES_WORK", 100_000_000,
             "most work one request's override prices may take: Dijkstra runs x (nodes + "
-            "residual arcs); more gets 413 naming /prices", _whole),
+            "residual arcs); more gets 413 naming /prices (checking a price proof in "
+            "/v1/verify, likewise)", _whole),
     Setting("METRICS_ENABLED", True,
             "serve GET /metrics (Prometheus text format) and count requests and solves: "
             "true or false", _flag),

@@ -40,6 +40,7 @@ from service.check.distances import (
     rows_differ,
 )
 from service.check.exact import _dot, _grid_values, _products, _show
+from service.errors import TooLarge
 
 __all__ = ["PRICE_CHECKS", "check_prices"]
 
@@ -47,12 +48,24 @@ PRICE_CHECKS = ["price_rows", "price_distances", "force_delta", "forbid_delta"]
 
 
 def check_prices(checks: _Checks, g: ResidualArcs, pairs: dict[str, np.ndarray],
-                 rows: Any, proof: Any, scale: int) -> None:
+                 rows: Any, proof: Any, scale: int, max_work: int | None = None) -> None:
     """Add the four price checks to ``checks``.
 
     ``pairs``: per allowed pair in the problem's order, ``tail``, ``head``, ``id`` (arc
     id), ``flow``, ``reduced`` (forward reduced cost) and ``room`` (bool: may grow).
+    Raises TooLarge when checking the proof would take more than ``max_work``: each
+    distance row and each set of labels is read against every residual arc.
     """
+    if max_work is not None and isinstance(proof, dict):
+        rows_given = len(proof["roots"]) if isinstance(proof.get("roots"), list) else 0
+        labelled = sum(1 for e in proof.get("reroutes") or [] if isinstance(e, dict)
+                       and "labels" in e) if isinstance(proof.get("reroutes"), list) else 0
+        work = (rows_given + labelled) * (g.n + len(g.tail))
+        if work > max_work:
+            raise TooLarge(f"/answer/certificate/prices: checking it takes {work:,} units of "
+                           f"work (distance rows and labels x (nodes + residual arcs)), more "
+                           f"than the limit of {max_work:,} (setting MAX_PRICES_WORK)",
+                           limit=max_work, pointer="/answer/certificate/prices")
     claimed = _rows(g, pairs, rows, scale)
     if isinstance(claimed, str):
         checks.add("price_rows", claimed, "")

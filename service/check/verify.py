@@ -60,21 +60,26 @@ _AFTER_BALANCES = ["unused", "unmet", "objective", "hard_shortfall", "unmet_dema
 
 
 def verify_answer(net: Network, answer: dict[str, Any], *,
-                  alternatives: int | None = None) -> dict[str, Any]:
+                  alternatives: int | None = None,
+                  price_work: int | None = None) -> dict[str, Any]:
     """Check ``answer`` (loaded by AnswerSchema) against ``net``; ``{"valid", "checks"}``.
+
+    ``price_work``: the most work checking override prices may take (TooLarge beyond it);
+    None for no limit (the service's own answers, already held to MAX_PRICES_WORK).
 
     ``alternatives``: how many next-best plans the problem asked for; they and their
     partition are checked whenever the problem asks for them or the answer has them.
     """
     checks = _Checks()
-    _check_optimum(net, answer, checks)
+    _check_optimum(net, answer, checks, price_work)
     if alternatives is not None or "alternatives" in answer or "partition" in answer:
         check_partition(net, answer, checks, alternatives,
                         lambda doc: verify_answer(net, doc))
     return _result(checks)
 
 
-def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks) -> None:
+def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks,
+                   price_work: int | None = None) -> None:
     ids = net.ids
     index = dict(zip(ids, range(len(ids)), strict=True))
     scale = net.cost_scale
@@ -212,11 +217,12 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks) -> Non
                "each reason given for unmet demand follows the rule")
     if answer.get("prices") is not None:
         _check_prices(checks, net, answer, arc, x, pi,
-                      (v_tail, v_head, v_reduced, v_cap, v_x))
+                      (v_tail, v_head, v_reduced, v_cap, v_x), price_work)
 
 
 def _check_prices(checks: _Checks, net: Network, answer: dict[str, Any], arc: np.ndarray,
-                  x: np.ndarray, pi: np.ndarray, virtual: tuple[np.ndarray, ...]) -> None:
+                  x: np.ndarray, pi: np.ndarray, virtual: tuple[np.ndarray, ...],
+                  price_work: int | None) -> None:
     """The override prices, once the answer itself is proven optimal."""
     if not all(c["passed"] for c in checks.items):
         checks.skip(PRICE_CHECKS, "the answer itself is not proven optimal")
@@ -233,7 +239,7 @@ def _check_prices(checks: _Checks, net: Network, answer: dict[str, Any], arc: np
     g = residual_arcs(net.n_user + 3, (arcs.tail, arcs.head, arcs.id, reduced,
                                        arcs.capacity, arcs.bounded, flow), virtual)
     check_prices(checks, g, pairs, answer["prices"], answer["certificate"].get("prices"),
-                 net.cost_scale)
+                 net.cost_scale, price_work)
 
 
 def _data_differs(net: Network, data: dict[str, Any]) -> str | None:

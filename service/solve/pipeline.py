@@ -154,7 +154,8 @@ def verify_body(body: Any, settings: Settings) -> dict[str, Any]:
         data = _load(_verify_schema, body)
         answer = data.pop("answer")
         return verify_answer(build_network(data, settings), answer,
-                             alternatives=data.get("alternatives"))
+                             alternatives=data.get("alternatives"),
+                             price_work=settings.max_prices_work)
 
 
 def recheck_stored(problem: Any, answer: Any, settings: Settings) -> tuple[bool, str]:

@@ -98,12 +98,7 @@ def override_prices(net: Network, flow_of_plan, cert: Certificate, max_work: int
     reachable = np.bincount(res.head, minlength=n) > 0
     needs = reachable[cand_tail] & (cand_tail != arcs.tail[unit][cand_pair])
     roots = np.unique(np.concatenate([arcs.tail[forcing], cand_tail[needs]]))
-    work = work_of(len(roots), len(multi), res)
-    if work > max_work:
-        raise TooLarge(f"/prices: pricing every pair takes {work:,} units of work "
-                       f"(Dijkstra runs x (nodes + residual arcs)), more than the limit of "
-                       f"{max_work:,} (setting MAX_PRICES_WORK); ask for prices on a "
-                       "smaller problem", limit=max_work, pointer="/prices")
+    _within(work_of(len(roots), len(multi), res), max_work)
     dist, succ = _to_roots(res, roots)
     row = np.full(n, -1, np.int64)
     row[roots] = np.arange(len(roots))
@@ -120,6 +115,7 @@ def override_prices(net: Network, flow_of_plan, cert: Certificate, max_work: int
                                arcs.head[unit], cand_pair, cand_arc)
     for p, (extra, _) in paths.items():
         forbid[p] = NONE if extra is None else -r_fwd[p] + extra
+    _within(work_of(len(roots), len(multi) + len(alone), res), max_work)
     reroutes = {}
     for p in np.concatenate([multi, alone]).tolist():
         k = int(x[p])
@@ -128,6 +124,14 @@ def override_prices(net: Network, flow_of_plan, cert: Certificate, max_work: int
         forbid[p] = NONE if found.extra is None else k * -int(r_fwd[p]) + found.extra
     unit_steps = {p: s for p, (_, s) in paths.items()}
     return Prices(res, x, force, forbid, roots, dist, succ, unit_steps, reroutes)
+
+
+def _within(work: int, max_work: int) -> None:
+    if work > max_work:
+        raise TooLarge(f"/prices: pricing every pair takes {work:,} units of work "
+                       f"(Dijkstra runs x (nodes + residual arcs)), more than the limit of "
+                       f"{max_work:,} (setting MAX_PRICES_WORK); ask for prices on a "
+                       "smaller problem", limit=max_work, pointer="/prices")
 
 
 def _into_heads(res: Residual, arc_id: np.ndarray, head: np.ndarray

@@ -212,3 +212,14 @@ def test_prices_must_be_a_boolean(solve):
     status, body = solve({**ASSIGNMENT, "prices": "yes"})
     assert status == 422
     assert [e["pointer"] for e in body["errors"]] == ["/prices"]
+
+
+def test_a_proof_too_large_to_check_is_refused_naming_the_field(solve):
+    from service.app import create_app
+    status, answer = solve({**ASSIGNMENT, "prices": True})
+    client = create_app({"TESTING": True, "MAX_PRICES_WORK": 10}).test_client()
+    resp = client.post("/v1/verify", json={**ASSIGNMENT, "answer": answer})
+    body = resp.get_json()
+    assert resp.status_code == 413
+    assert "/answer/certificate/prices" in body["detail"]
+    assert "MAX_PRICES_WORK" in body["detail"]
