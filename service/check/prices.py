@@ -60,7 +60,9 @@ def check_prices(checks: _Checks, g: ResidualArcs, pairs: dict[str, np.ndarray],
         rows_given = len(proof["roots"]) if isinstance(proof.get("roots"), list) else 0
         labelled = sum(1 for e in proof.get("reroutes") or [] if isinstance(e, dict)
                        and "labels" in e) if isinstance(proof.get("reroutes"), list) else 0
-        work = (rows_given + labelled) * (g.n + len(g.tail))
+        unit = pairs["head"][pairs["flow"] == 1]
+        work = max((rows_given + labelled) * (g.n + len(g.tail)),
+                   int(np.bincount(g.head, minlength=g.n)[unit].sum()))
         if work > max_work:
             raise TooLarge(f"/answer/certificate/prices: checking it takes {work:,} units of "
                            f"work (distance rows and labels x (nodes + residual arcs)), more "

@@ -93,6 +93,8 @@ def override_prices(net: Network, flow_of_plan, cert: Certificate, max_work: int
     forcing = np.flatnonzero((x == 0) & room)
     used = np.flatnonzero(x > 0)
     unit, multi = used[x[used] == 1], used[x[used] > 1]
+    # the arcs into the heads of one-unit pairs are read once per pair
+    _within(int(np.bincount(res.head, minlength=n)[arcs.head[unit]].sum()), max_work)
     cand_pair, cand_arc = _into_heads(res, arcs.id[unit], arcs.head[unit])
     cand_tail = res.tail[cand_arc]
     reachable = np.bincount(res.head, minlength=n) > 0
