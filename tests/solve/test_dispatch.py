@@ -187,3 +187,20 @@ def test_shortfall_of_a_matching_with_more_sinks_than_sources():
     assert shortfall.amount == 1
     w = witness(net, shortfall)
     assert (w["demand"], w["capacity"], w["shortfall"]) == (3, 2, 1)
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_the_cheapest_arc_per_pair_is_the_first_of_each_pair_in_a_three_key_sort(seed):
+    # Reference: numpy's lexsort by (pair, cost, position), the first of each pair; the
+    # network simplex sees only these arcs, so the answer's bytes depend on this choice.
+    from service.solve.engines.transportation import _cheapest_per_pair
+
+    rng = np.random.default_rng(seed)
+    m, pairs = int(rng.integers(0, 400)), int(rng.integers(1, 60))
+    key = rng.integers(0, pairs, m)
+    cost = rng.integers(-3, 4, m)            # few costs: many ties among parallel arcs
+    order = np.lexsort((np.arange(m), cost, key))
+    expected = order[np.diff(key[order], prepend=-1) != 0]
+    assert np.array_equal(_cheapest_per_pair(key, cost, pairs), expected)
+    # past 2**32 pairs the same answer comes from the lexsort itself
+    assert np.array_equal(_cheapest_per_pair(key, cost, 2**33), expected)

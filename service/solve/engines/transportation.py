@@ -8,6 +8,7 @@ from ot.lp.emd_wrap import emd_c_sparse
 from service.network.model import Flow, Network
 from service.solve import isolation
 from service.solve.engines import Run, log2_ceil
+from service.solve.paths import order_by
 
 __all__ = ["NAME", "solve", "suits"]
 
@@ -67,8 +68,7 @@ def solve(net: Network, hard_shortfall: int) -> Run | None | bool:
     ns, nt, off = net.n_sources, net.n_sinks, net.sink_offset
     col = arcs.head - off
     key = arcs.tail * nt + col
-    order = np.lexsort((np.arange(len(key)), arcs.cost, key))
-    first = order[np.diff(key[order], prepend=-1) != 0]
+    first = _cheapest_per_pair(key, arcs.cost, ns * nt)
     soft, hard = np.flatnonzero(net.soft), np.flatnonzero(~net.soft)
     rows, cols, cost, supply = [arcs.tail[first]], [col[first]], [arcs.cost[first]], [net.supply]
     r = ns
@@ -133,6 +133,28 @@ def solve(net: Network, hard_shortfall: int) -> Run | None | bool:
     _fill_empty(net, duals, a[:ns] == 0, b[:nt] == 0, first)
     return Run(Flow(arc=flow_arc[by_arc], amount=np.rint(values[user][by_arc]).astype(np.int64)),
                duals)
+
+
+def _cheapest_per_pair(key: np.ndarray, cost: np.ndarray, n_keys: int) -> np.ndarray:
+    """For each distinct ``key`` in ascending order, the position of its cheapest arc, the
+    first in request order among equally cheap ones.
+
+    The same positions as the first of each key in ``np.lexsort((index, cost, key))``, in
+    linear time: one stable radix order by key (:func:`order_by`), then the least cost of
+    each run of equal keys and the first arc of the run that has it (1M arcs: 0.25 s
+    against 1.2 s for the three-key lexsort on this machine, under load).
+    """
+    if len(key) == 0 or n_keys > 1 << 32:
+        order = np.lexsort((np.arange(len(key)), cost, key))
+        return order[np.diff(key[order], prepend=-1) != 0]
+    order = order_by(key, n_keys)
+    sorted_key, sorted_cost = key[order], cost[order]
+    starts = np.flatnonzero(np.diff(sorted_key, prepend=-1) != 0)
+    run = np.cumsum(np.diff(sorted_key, prepend=-1) != 0) - 1
+    cheapest = np.minimum.reduceat(sorted_cost, starts)
+    hits = np.flatnonzero(sorted_cost == cheapest[run])
+    # the hits of a run are in request order (the radix order is stable): keep the first
+    return order[hits[np.diff(run[hits], prepend=-1) != 0]]
 
 
 def _solve_positive(a: np.ndarray, b: np.ndarray, tails: np.ndarray, heads: np.ndarray,
