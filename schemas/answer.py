@@ -193,10 +193,25 @@ class PartitionSchema(Schema):
     branches = fields.List(fields.List(fields.Nested(PairSchema), allow_none=True),
                            required=True)
     frontier = fields.List(fields.Nested(FrontierSchema), required=True)
+_HEX64 = validate.Regexp(r"^[0-9a-f]{64}$", error="must be 64 lower-case hex digits")
+
+
+class DecisionSchema(Schema):
+    """Provenance of an answer from /v1/solve; its RFC 8785 JSON is a leaf of the
+    decision log. ``id`` and ``log_index`` are null when recording is off."""
+
+    id = fields.String(required=True, allow_none=True)
+    recorded_at = fields.String(required=True, metadata={"description": "RFC 3339, UTC"})
+    input_sha256 = fields.String(required=True, validate=_HEX64)
+    answer_sha256 = fields.String(required=True, validate=_HEX64)
+    log_index = fields.Integer(required=True, allow_none=True, validate=validate.Range(min=0))
+    service_version = fields.String(required=True)
+    caller = fields.String(required=True, allow_none=True)
 
 
 class AnswerSchema(Schema):
-    """An answer to check: as returned by /v1/solve, or produced by anyone else."""
+    """An answer to check: as returned by /v1/solve, or produced by anyone else. Its
+    ``decision``, when there, is read for its shape and not checked further."""
 
     status = fields.String(validate=validate.Equal("optimal"))
     shape = fields.String(validate=validate.OneOf(SHAPES))
@@ -215,6 +230,7 @@ class AnswerSchema(Schema):
     alternatives = fields.List(fields.Nested(AlternativeSchema), metadata={
         "description": "the next-best plans, best first (README, 'Ranked alternatives')"})
     partition = fields.Nested(PartitionSchema)
+    decision = fields.Nested(DecisionSchema)
 
 
 class SolveResultSchema(AnswerSchema):
@@ -225,6 +241,7 @@ class SolveResultSchema(AnswerSchema):
     solver = fields.String(required=True, validate=validate.OneOf(SOLVERS))
     flow_value = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
     unmet = RecordList(UnmetResultSchema, required=True)
+    decision = fields.Nested(DecisionSchema, required=True)
 
 
 class VerifyRequestSchema(ProblemSchema):

@@ -1,4 +1,9 @@
-"""The Flask application factory: ``gunicorn 'service.app:create_app()'``."""
+"""The Flask application factory: ``gunicorn 'service.app:create_app()'``.
+
+The composition root: the settings, the token set, the decision store and its signer
+(``service.http.recording.Recorder``) and the blueprints are put together here and
+nowhere else.
+"""
 
 from __future__ import annotations
 
@@ -14,7 +19,9 @@ from service.http import auth, encoding, observe
 from service.http.api import api_bp
 from service.http.body import json_response
 from service.http.pages import pages_bp
+from service.http.recording import Recorder
 from service.http.reports import report_bp
+from service.records.config import RecordSettings
 from service.settings import load_settings
 
 log = logging.getLogger(__name__)
@@ -23,7 +30,10 @@ log = logging.getLogger(__name__)
 def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     """Build the app; ``config`` overrides settings (``MAX_ARCS``...) and Flask options.
 
-    Raises ValueError naming the setting when one is invalid (see service.settings).
+    Raises ValueError naming the setting when one is invalid (see service.settings), and
+    refuses to build on a decision store whose schema is behind (SchemaNotCurrent, saying
+    to run ``certimatch db upgrade``) or that cannot be reached (StoreUnavailable), unless
+    recording is off. An empty database gets the schema created here.
     """
     app = Flask(__name__)
     # openapi.yaml lists every method a route answers; OPTIONS is not one of them (405)
@@ -34,6 +44,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         app.config.update({k: v for k, v in config.items() if k.isupper()})
     app.extensions["certimatch.settings"] = settings
     auth.init_app(app, settings)
+    app.extensions["certimatch.recorder"] = Recorder(RecordSettings.of(settings))
     app.register_blueprint(api_bp)
     app.register_blueprint(pages_bp)
     app.register_blueprint(report_bp)

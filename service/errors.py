@@ -167,3 +167,16 @@ class ServerBusy(ServiceError):
     status = 503
     slug = "server-busy"
     title = "Server too busy to finish in time"
+
+
+class BadParameter(ServiceError):
+    """A query parameter or request header with a value the service does not take;
+    ``parameter`` names it."""
+
+    status = 400
+    slug = "invalid-parameter"
+    title = "Invalid parameter"
+
+    def __init__(self, parameter: str, detail: str) -> None:
+        super().__init__(f"{parameter}: {detail}", parameter=parameter)
+        self.parameter = parameter

@@ -85,6 +85,35 @@ def _path(raw: Any) -> str:
     return raw.strip()
 
 
+#: What is kept of each decision: everything, its provenance and digests only, nothing.
+RECORD_MODES = ("full", "digest", "off")
+
+
+def _text(raw: Any) -> str:
+    if not isinstance(raw, str):
+        raise _Refused("must be text")
+    return raw.strip()
+
+
+def _record_mode(raw: Any) -> str:
+    if isinstance(raw, str) and raw.strip().lower() in RECORD_MODES:
+        return raw.strip().lower()
+    raise _Refused(f"must be one of {', '.join(RECORD_MODES)}")
+
+
+def _days(raw: Any) -> int | None:
+    # "keep" is spelled out so that a deployment can say "never prune" explicitly.
+    if raw is None or (isinstance(raw, str) and raw.strip().lower() in ("", "keep")):
+        return None
+    try:
+        value = int(raw)
+    except (TypeError, ValueError):
+        value = 0
+    if isinstance(raw, bool) or value < 1 or (isinstance(raw, float) and raw != value):
+        raise _Refused("must be a whole number of days of at least 1, or keep")
+    return value
+
+
 def _seconds(raw: Any) -> int:
     value = _whole(raw)
     if value > MAX_SECONDS:
@@ -127,6 +156,7 @@ class Setting:
     parse: Callable[[Any], Any]
     scope: Scope = "app"
     secret: bool = False      # never repeat the value in a message
+    shown: str | None = None  # the README's word for the default, when not the value
 
     @property
     def env(self) -> str:
@@ -135,6 +165,8 @@ class Setting:
     @property
     def shown_default(self) -> str:
         """The default as the README's settings table writes it."""
+        if self.shown is not None:
+            return self.shown
         if self.default is None:
             return "auto"
         if self.default in ((), ""):
@@ -172,6 +204,22 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("MAX_TIME_LIMIT_S", 60,
             "longest a request may compute, in seconds; a request may ask for less with "
             "time_limit_s", _seconds),
+    Setting("DATABASE_URL", "",
+            "database of the decision store, an SQLAlchemy URL; none: a SQLite file in "
+            "DATA_DIR, created on first start. Several replicas share one PostgreSQL "
+            "database (postgresql+psycopg://user@host/db)", _text, secret=True),
+    Setting("DATA_DIR", "./certimatch-data",
+            "directory of the embedded database and of the generated signing key", _text),
+    Setting("RECORD", "full",
+            "what is kept of each decision: full (problem, answer and provenance), "
+            "digest (provenance and digests only) or off", _record_mode),
+    Setting("RETENTION_DAYS", None,
+            "days after which the problem and answer of a record are removed (its "
+            "provenance and leaf stay, so the log still verifies); keep: never", _days,
+            shown="keep"),
+    Setting("SIGNING_KEY_FILE", "",
+            "file of the Ed25519 key (PEM) that signs checkpoints; none: generated as "
+            "signing-key.pem in DATA_DIR on first start. Replicas share one key", _text),
     Setting("INSECURE", False,
             "gunicorn only: allow listening on a non-loopback address with no tokens "
             "(a warning is logged): true or false", _flag, "server"),
@@ -205,7 +253,8 @@ def _default(name: str) -> Any:
 @dataclass(frozen=True)
 class Settings:
     """What ``create_app`` reads: limits that keep one request from eating the machine,
-    and whether metrics are served."""
+    whether metrics are served, who may call, and where and what the decision store
+    keeps."""
 
     max_body_bytes: int = _default("MAX_BODY_BYTES")
     max_cells: int = _default("MAX_CELLS")
@@ -218,6 +267,11 @@ class Settings:
     tokens_file: str = _default("TOKENS_FILE")
     metrics_public: bool = _default("METRICS_PUBLIC")
     max_time_limit_s: int = _default("MAX_TIME_LIMIT_S")
+    database_url: str = field(default=_default("DATABASE_URL"), repr=False)
+    data_dir: str = _default("DATA_DIR")
+    record: str = _default("RECORD")
+    retention_days: int | None = _default("RETENTION_DAYS")
+    signing_key_file: str = _default("SIGNING_KEY_FILE")
 
 
 @dataclass(frozen=True)

@@ -1,10 +1,19 @@
-"""Shared fixtures: one app per test, a test client, and JSON round trips that return data."""
+"""Shared fixtures: one app per test, a test client, and JSON round trips that return data.
+
+Every app and server a test session starts keeps its decision store in one temporary
+folder (``CERTIMATCH_DATA_DIR``, set here before any app is built, kept by the cleaners
+of tests/servers.py), removed when the session ends: never in ./certimatch-data.
+"""
 
 from __future__ import annotations
 
 import json
+import os
+import shutil
+import tempfile
 from collections.abc import Callable
 from dataclasses import fields
+from pathlib import Path
 from typing import Any
 
 import pytest
@@ -15,12 +24,27 @@ from service.settings import ENV_PREFIX, Settings
 #: (status, parsed JSON body) of one request.
 Reply = tuple[int, Any]
 
+SESSION_DATA_DIR = tempfile.mkdtemp(prefix="certimatch-test-data-")
+os.environ[ENV_PREFIX + "DATA_DIR"] = SESSION_DATA_DIR
+_REPO_DATA_DIR = Path(__file__).resolve().parents[1] / "certimatch-data"
+_REPO_DATA_DIR_BEFORE = _REPO_DATA_DIR.exists()
+
+
+def pytest_sessionfinish(session: pytest.Session, exitstatus: int) -> None:
+    shutil.rmtree(SESSION_DATA_DIR, ignore_errors=True)
+    if _REPO_DATA_DIR.exists() and not _REPO_DATA_DIR_BEFORE:
+        # A test built an app without the session's store: it wrote into the checkout.
+        session.exitstatus = pytest.ExitCode.TESTS_FAILED
+        print(f"\nFAILED: a test wrote the decision store into {_REPO_DATA_DIR}; build apps "
+              "with the session's CERTIMATCH_DATA_DIR (tests/conftest.py)")
+
 
 @pytest.fixture
 def app(monkeypatch: pytest.MonkeyPatch):
     # A CERTIMATCH_* variable left in the shell would silently change the limits under test.
     for f in fields(Settings):
-        monkeypatch.delenv(ENV_PREFIX + f.name.upper(), raising=False)
+        if f.name != "data_dir":        # the session's temporary store (see below)
+            monkeypatch.delenv(ENV_PREFIX + f.name.upper(), raising=False)
     return create_app({"TESTING": True})
 
 

@@ -47,12 +47,23 @@ GOOD = {
 GOOD_OBJECTIVE = 5
 
 
+#: Where the decision store of every app and server of a test session lives (a temporary
+#: folder tests/conftest.py sets): a place, not a behaviour, so the cleaners keep it, and
+#: no test writes into ./certimatch-data.
+DATA_DIR_ENV = "CERTIMATCH_DATA_DIR"
+
+
+def shell_setting(name: str) -> bool:
+    """True for a ``CERTIMATCH_*`` variable a test must not inherit from the shell."""
+    return name.startswith("CERTIMATCH_") and name != DATA_DIR_ENV
+
+
 def clean_app(config: Mapping[str, Any] | None = None) -> Any:
     """``create_app`` as the tests mean it: without the ``CERTIMATCH_*`` variables a shell
     may hold (a limit or a token there would change what is under test)."""
     from service.app import create_app
 
-    saved = {k: os.environ.pop(k) for k in list(os.environ) if k.startswith("CERTIMATCH_")}
+    saved = {k: os.environ.pop(k) for k in list(os.environ) if shell_setting(k)}
     try:
         return create_app({"TESTING": True, **(config or {})})
     finally:
@@ -158,7 +169,7 @@ class Gunicorn:
         runtime = self.folder / f"runtime-{self.port}"
         runtime.mkdir(parents=True, exist_ok=True)
         env = {k: v for k, v in os.environ.items()
-               if not k.startswith("CERTIMATCH_") and k != "PROMETHEUS_MULTIPROC_DIR"}
+               if not shell_setting(k) and k != "PROMETHEUS_MULTIPROC_DIR"}
         env.update({
             # Each server its own runtime folder: gunicorn >= 25.1 puts its control
             # socket there, and two servers sharing one would delete each other's.

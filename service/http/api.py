@@ -7,12 +7,19 @@ from collections.abc import Callable
 from contextlib import ExitStack
 from typing import Any
 
-from flask import Blueprint, Response, current_app
+from flask import Blueprint, Response, current_app, request
 
-from service.errors import PROBLEM_CONTENT_TYPE, CertificateFailure, problem_document
+from service.errors import (
+    PROBLEM_CONTENT_TYPE,
+    BadParameter,
+    CertificateFailure,
+    problem_document,
+)
 from service.http import observe
-from service.http.body import current_settings, json_body, json_response
+from service.http.auth import current_caller
+from service.http.body import current_recorder, current_settings, json_body, json_response
 from service.http.limits import time_limits_told_apart
+from service.records.store import MAX_IDEMPOTENCY_KEY
 from service.settings import Settings
 from service.solve.deadline import counted_from_arrival
 from service.solve.pipeline import request_scope, solve_body, verify_body
@@ -66,10 +73,56 @@ def _answered(work: Callable[[Any], Response]) -> Response:
     return response
 
 
+def idempotency_key() -> str | None:
+    """The request's ``Idempotency-Key``: a Structured Fields string (``"..."``), as the
+    IETF draft writes it, or the bare text many clients send; 400 when it is neither."""
+    raw = request.headers.get("Idempotency-Key")
+    if raw is None:
+        return None
+    text = raw.strip()
+    if text.startswith('"'):
+        text = _sf_string(text)
+    if not 0 < len(text) <= MAX_IDEMPOTENCY_KEY or not (text.isascii() and text.isprintable()):
+        raise BadParameter("Idempotency-Key", f"must be 1 to {MAX_IDEMPOTENCY_KEY} printable "
+                           "ASCII characters")
+    return text
+
+
+def _sf_string(text: str) -> str:
+    """The value of an RFC 8941 §3.3.3 string: quoted, with only \\" and \\\\ escaped."""
+    out, i = [], 1
+    while i < len(text):
+        c = text[i]
+        if c == "\\" and i + 1 < len(text) and text[i + 1] in '"\\':
+            out.append(text[i + 1])
+            i += 2
+        elif c == '"' and i == len(text) - 1:
+            return "".join(out)
+        elif c in '"\\':
+            break
+        else:
+            out.append(c)
+            i += 1
+    raise BadParameter("Idempotency-Key", "not a valid quoted string (RFC 8941)")
+
+
 @api_bp.post("/v1/solve")
 def solve() -> Response:
     settings = current_settings()
-    return _answered(lambda body: json_response(_solve_counted(body, settings)))
+    recorder = current_recorder()
+    key = idempotency_key()
+    caller = current_caller()
+
+    def work(body: Any) -> Response:
+        pending, earlier = recorder.begin(body, caller, key)
+        if earlier is not None:
+            return Response(earlier, content_type="application/json")
+        answer = _solve_counted(body, settings)
+        # The answer passed the independent check inside solve_body; only now is it
+        # recorded, and the response is the bytes the store kept for the key.
+        return Response(recorder.finish(pending, answer), content_type="application/json")
+
+    return _answered(work)
 
 
 @api_bp.post("/v1/verify")

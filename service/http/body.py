@@ -18,6 +18,7 @@ from service.http.encoding import (
     inflate,
     request_coding,
 )
+from service.http.recording import Recorder
 from service.settings import Settings
 
 
@@ -25,6 +26,12 @@ def current_settings() -> Settings:
     """The settings of the app serving this request."""
     settings: Settings = current_app.extensions["certimatch.settings"]
     return settings
+
+
+def current_recorder() -> Recorder:
+    """The decision store and signer of the app serving this request."""
+    recorder: Recorder = current_app.extensions["certimatch.recorder"]
+    return recorder
 
 
 def json_body() -> Any:

@@ -126,6 +126,8 @@ washer may wait at a penalty of 50; the fridge and the oven must be served.</p>
 {rows}</table>
 <p>{unmet} Objective: <b>{objective}</b>.</p>
 <pre id="solve-answer"><code>{answer}</code></pre>
+<p>The service ends every answer with a <code>decision</code> object (its id in the
+decision log, the time, the digests of problem and answer), left out here.</p>
 
 <h3>Why it is optimal</h3>
 <p>The certificate gives every source and sink a potential &pi;. The reduced cost of an arc

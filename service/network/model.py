@@ -133,6 +133,8 @@ class Network:
         """Mask of the ids that name a user arc."""
         if self.dense is not None:
             inside = (arc >= 0) & (arc < self.dense.size)
+            if not self.dense.size:
+                return inside                 # all False: an empty matrix has no cell
             flat = self.dense.reshape(-1)
             return inside & (flat[np.where(inside, arc, 0)] != FORBIDDEN)
         return (arc >= 0) & (arc < len(self.arcs))

@@ -2,8 +2,8 @@
 
 Each is an environment variable ``CERTIMATCH_<NAME>``, read and refused like the rows of
 ``service.settings.SETTINGS`` (a bad value stops the process at start-up with a
-``ValueError`` naming the variable and the values it allows). :data:`RECORD_SETTINGS`
-holds the rows in that table's shape, to be added to it.
+``ValueError`` naming the variable and the values it allows). The rows live in that
+table; :data:`RECORD_SETTINGS` names them, for the commands that read only these.
 """
 
 from __future__ import annotations
@@ -14,58 +14,18 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from service.settings import ENV_PREFIX, Setting
+from service.settings import ENV_PREFIX, RECORD_MODES, SETTINGS, Setting, Settings
 
 __all__ = ["RECORD_MODES", "RECORD_SETTINGS", "RecordSettings", "load_record_settings"]
 
-#: What is kept of each decision: everything, its provenance and digests only, nothing.
-RECORD_MODES = ("full", "digest", "off")
 #: File name of the embedded database inside the data directory.
 SQLITE_NAME = "decisions.sqlite3"
 
 
-def _text(raw: Any) -> str:
-    if not isinstance(raw, str):
-        raise ValueError("must be text")
-    return raw.strip()
-
-
-def _mode(raw: Any) -> str:
-    if isinstance(raw, str) and raw.strip().lower() in RECORD_MODES:
-        return raw.strip().lower()
-    raise ValueError(f"must be one of {', '.join(RECORD_MODES)}")
-
-
-def _days(raw: Any) -> int | None:
-    # "keep" is spelled out so that a deployment can say "never prune" explicitly.
-    if raw is None or (isinstance(raw, str) and raw.strip().lower() in ("", "keep")):
-        return None
-    try:
-        value = int(raw)
-    except (TypeError, ValueError):
-        value = 0
-    if isinstance(raw, bool) or value < 1 or (isinstance(raw, float) and raw != value):
-        raise ValueError("must be a whole number of days of at least 1, or keep")
-    return value
-
-
-RECORD_SETTINGS: tuple[Setting, ...] = (
-    Setting("DATABASE_URL", "",
-            "SQLAlchemy URL of the decision store; none: a SQLite file in DATA_DIR. "
-            "Several replicas share one PostgreSQL database "
-            "(postgresql+psycopg://user@host/db)", _text, secret=True),
-    Setting("DATA_DIR", "./certimatch-data",
-            "directory of the embedded database and of the generated signing key", _text),
-    Setting("RECORD", "full",
-            "what is kept of each decision: full (problem, answer and provenance), "
-            "digest (provenance and digests only) or off", _mode),
-    Setting("RETENTION_DAYS", None,
-            "days after which the problem and answer of a record are removed (its "
-            "provenance and leaf stay, so the log still verifies); keep: never", _days),
-    Setting("SIGNING_KEY_FILE", "",
-            "PEM file of the Ed25519 key that signs checkpoints; none: generated as "
-            "signing-key.pem in DATA_DIR on first start. Replicas share one key", _text),
-)
+#: The store's rows of the service's one settings table (``service.settings.SETTINGS``).
+RECORD_SETTINGS: tuple[Setting, ...] = tuple(
+    s for s in SETTINGS if s.name in ("DATABASE_URL", "DATA_DIR", "RECORD", "RETENTION_DAYS",
+                                      "SIGNING_KEY_FILE"))
 
 
 @dataclass(frozen=True)
@@ -84,6 +44,12 @@ class RecordSettings:
         if self.database_url:
             return self.database_url
         return f"sqlite:///{Path(self.data_dir).resolve() / SQLITE_NAME}"
+
+    @classmethod
+    def of(cls, settings: Settings) -> RecordSettings:
+        """The store's part of the service's settings."""
+        return cls(settings.database_url, settings.data_dir, settings.record,
+                   settings.retention_days, settings.signing_key_file)
 
 
 def load_record_settings(overrides: Mapping[str, Any] | None = None,

@@ -1,8 +1,9 @@
 """The decision store's schema: apply the migrations, or say how far behind it is.
 
 ``certimatch db upgrade`` calls :func:`upgrade`; the service calls
-:func:`require_current` at start-up and refuses to start on a schema that is not at the
-newest revision this version ships, saying what to run.
+:func:`prepare` at start-up: it creates the schema on an empty database (a fresh data
+directory) and otherwise refuses to start on a schema that is not at the newest revision
+this version ships, saying what to run (:func:`require_current`).
 """
 
 from __future__ import annotations
@@ -16,12 +17,13 @@ from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
 from alembic.script.revision import ResolutionError
 from alembic.util import CommandError
-from sqlalchemy import Engine
+from sqlalchemy import Engine, inspect
 from sqlalchemy.exc import DBAPIError
 
 from service.records.errors import SchemaNotCurrent, StoreUnavailable
 
-__all__ = ["SchemaStatus", "alembic_config", "require_current", "schema_status", "upgrade"]
+__all__ = ["SchemaStatus", "alembic_config", "prepare", "require_current", "schema_status",
+           "upgrade"]
 
 _MIGRATIONS = Path(__file__).with_name("migrations")
 UPGRADE_COMMAND = "certimatch db upgrade"
@@ -100,3 +102,27 @@ def upgrade(engine: Engine, revision: str = "head") -> SchemaStatus:
 def _reason(error: DBAPIError) -> str:
     """The driver's first line, without SQLAlchemy's statement and link."""
     return str(error.orig).strip().splitlines()[0] if error.orig else type(error).__name__
+
+
+def prepare(engine: Engine) -> SchemaStatus:
+    """The start-up check: create the schema on an empty database (no table at all), so
+    that a fresh data directory just works; refuse (SchemaNotCurrent, saying what to run)
+    a schema that is behind or unknown. StoreUnavailable when the database cannot be
+    reached."""
+    status = schema_status(engine)
+    if status.current is None and not status.at_head and _empty(engine):
+        try:
+            status = upgrade(engine)
+        except (StoreUnavailable, CommandError):
+            # Several workers start at once: one created it, the others' DDL failed.
+            status = schema_status(engine)
+    if not status.at_head:
+        raise SchemaNotCurrent(status.message())
+    return status
+
+
+def _empty(engine: Engine) -> bool:
+    try:
+        return not inspect(engine).get_table_names()
+    except DBAPIError as e:
+        raise StoreUnavailable(f"the decision store cannot be reached: {_reason(e)}") from e

@@ -24,7 +24,8 @@ from service.app import create_app
 def client():
     with pytest.MonkeyPatch.context() as mp:
         for name in list(os.environ):
-            if name.startswith("CERTIMATCH_"):     # a setting left in the shell
+            # a setting left in the shell (the session's temporary store stays)
+            if name.startswith("CERTIMATCH_") and name != "CERTIMATCH_DATA_DIR":
                 mp.delenv(name)
         yield create_app({"TESTING": True}).test_client()
 
@@ -90,6 +91,13 @@ def _tampered(problem: dict, answer: dict) -> list[dict]:
         wrong = copy.deepcopy(answer)
         wrong["allocation"] = [{"from": problem["sources"][0]["id"], "to": "ticket-9",
                                 "flow": 1, "cost": 0}]
+        out.append(wrong)
+    if problem["sinks"] and "costs" in problem:
+        # a row between two sinks of an empty matrix: it names no cell at all (this once
+        # indexed the empty matrix and failed as a 500)
+        wrong = copy.deepcopy(answer)
+        wrong["allocation"] = [{"from": problem["sinks"][0]["id"],
+                                "to": problem["sinks"][-1]["id"], "flow": 1, "cost": 0}]
         out.append(wrong)
     return out
 

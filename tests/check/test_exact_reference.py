@@ -30,7 +30,7 @@ SEEDS = range(25)
 def client():
     with pytest.MonkeyPatch.context() as mp:
         for name in list(os.environ):
-            if name.startswith("CERTIMATCH_"):
+            if name.startswith("CERTIMATCH_") and name != "CERTIMATCH_DATA_DIR":
                 mp.delenv(name)
         yield create_app({"TESTING": True}).test_client()
 

@@ -33,5 +33,5 @@ def clean_environment(monkeypatch: pytest.MonkeyPatch) -> None:
     import os
 
     for name in list(os.environ):
-        if name.startswith("CERTIMATCH_"):
+        if name.startswith("CERTIMATCH_") and name != "CERTIMATCH_DATA_DIR":
             monkeypatch.delenv(name)

@@ -22,6 +22,7 @@ from typing import Any
 
 import pytest
 import yaml
+from servers import DATA_DIR_ENV
 
 import service.http.observe
 from service.app import create_app
@@ -47,7 +48,7 @@ KNOWN_ENV = {s.env for s in SETTINGS}
 def clean_env(monkeypatch: pytest.MonkeyPatch) -> None:
     # gunicorn.conf.py reads the process environment; a CERTIMATCH_* or metrics directory
     # left in the shell would change what these tests see.
-    for env in KNOWN_ENV:
+    for env in KNOWN_ENV - {DATA_DIR_ENV}:       # keep the session's temporary store
         monkeypatch.delenv(env, raising=False)
     # on_starting sets this variable itself; setenv first makes monkeypatch remember the
     # variable's state before the test (delenv of an absent one records nothing), so that

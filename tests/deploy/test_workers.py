@@ -23,7 +23,7 @@ from typing import Any
 import pytest
 import requests
 from prometheus_client.parser import text_string_to_metric_families
-from servers import CONFIG, GOOD, GOOD_OBJECTIVE, ROOT, Gunicorn, gunicorn, wait_for
+from servers import CONFIG, DATA_DIR_ENV, GOOD, GOOD_OBJECTIVE, ROOT, Gunicorn, gunicorn, wait_for
 
 from service.settings import SETTINGS
 
@@ -38,7 +38,8 @@ GIVE_UP_SECONDS = 60.0
 def clean_env(monkeypatch: pytest.MonkeyPatch) -> None:
     # gunicorn.conf.py reads CERTIMATCH_* from the environment; a shell's would leak in.
     for s in SETTINGS:
-        monkeypatch.delenv(s.env, raising=False)
+        if s.env != DATA_DIR_ENV:                # the session's temporary store
+            monkeypatch.delenv(s.env, raising=False)
 
 
 def _server_env(tmp_path: Path) -> dict[str, str]:

@@ -40,7 +40,8 @@ JSON = "application/json"
 def clean_env(monkeypatch: pytest.MonkeyPatch) -> None:
     # Several tests build their own app with one small limit; the shell must not add others.
     for f in fields(Settings):
-        monkeypatch.delenv(ENV_PREFIX + f.name.upper(), raising=False)
+        if f.name != "data_dir":                 # the session's temporary store
+            monkeypatch.delenv(ENV_PREFIX + f.name.upper(), raising=False)
 
 
 def problem_with(base: dict[str, Any] = GOOD, **changes: Any) -> dict[str, Any]:

@@ -22,7 +22,7 @@ import pytest
 import requests
 from prometheus_client import REGISTRY
 from prometheus_client.parser import text_string_to_metric_families
-from servers import Gunicorn
+from servers import DATA_DIR_ENV, Gunicorn
 
 import service.solve.pipeline
 from service.app import create_app
@@ -51,7 +51,8 @@ ARCS = {
 @pytest.fixture(autouse=True)
 def clean_env(monkeypatch: pytest.MonkeyPatch) -> None:
     for s in SETTINGS:
-        monkeypatch.delenv(s.env, raising=False)
+        if s.env != DATA_DIR_ENV:                # the session's temporary store
+            monkeypatch.delenv(s.env, raising=False)
 
 
 @pytest.fixture
