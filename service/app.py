@@ -18,6 +18,7 @@ from service.errors import PROBLEM_CONTENT_TYPE, ServiceError, problem_document
 from service.http import auth, encoding, observe
 from service.http.api import api_bp
 from service.http.body import json_response
+from service.http.decisions import decisions_bp
 from service.http.pages import pages_bp
 from service.http.recording import Recorder
 from service.http.reports import report_bp
@@ -48,6 +49,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.register_blueprint(api_bp)
     app.register_blueprint(pages_bp)
     app.register_blueprint(report_bp)
+    app.register_blueprint(decisions_bp)
     # Request ids, the request log line and metrics wrap every view, errors included.
     observe.init_app(app, settings.metrics_enabled)
     encoding.init_app(app)

@@ -10,11 +10,13 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
 import pytest
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 from postgres_server import postgres_schema
 from records_helpers import Clock
+from servers import clean_app
 
 from service.records.migrate import upgrade
 from service.records.signing import Signer
@@ -52,3 +54,27 @@ def store(database_url: str, clock: Clock) -> Iterator[DecisionStore]:
 @pytest.fixture(scope="session")
 def signer() -> Signer:
     return Signer(Ed25519PrivateKey.generate())
+
+
+@pytest.fixture
+def new_app():
+    """``new_app(config)``: ``clean_app``, its store closed after the test (a pooled
+    PostgreSQL connection left open warns when it is collected)."""
+    made: list[Any] = []
+
+    def build(config: dict[str, Any]) -> Any:
+        made.append(clean_app(config))
+        return made[-1]
+
+    yield build
+    for app in made:
+        app.extensions["certimatch.recorder"].close()
+
+
+@pytest.fixture
+def make_app(database_url: str, tmp_path: Path, new_app):
+    """``make_app(**settings)``: an app on this test's database and data folder."""
+    def build(**config: Any) -> Any:
+        return new_app({"DATABASE_URL": database_url, "DATA_DIR": str(tmp_path / "data"),
+                        **config})
+    return build

@@ -52,30 +52,6 @@ def sha(data: bytes) -> str:
     return hashlib.sha256(data).hexdigest()
 
 
-@pytest.fixture
-def new_app():
-    """``new_app(config)``: ``clean_app``, its store closed after the test (a pooled
-    PostgreSQL connection left open warns when it is collected)."""
-    made: list[Any] = []
-
-    def build(config: dict[str, Any]) -> Any:
-        made.append(clean_app(config))
-        return made[-1]
-
-    yield build
-    for app in made:
-        app.extensions["certimatch.recorder"].close()
-
-
-@pytest.fixture
-def make_app(database_url: str, tmp_path: Path, new_app):
-    """``make_app(**settings)``: an app on this test's database and data folder."""
-    def build(**config: Any) -> Any:
-        return new_app({"DATABASE_URL": database_url, "DATA_DIR": str(tmp_path / "data"),
-                        **config})
-    return build
-
-
 def log_size(app: Any) -> int:
     store, _ = app.extensions["certimatch.recorder"].open()
     return store.head()[0]
