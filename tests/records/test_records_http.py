@@ -14,7 +14,8 @@ import hashlib
 import io
 import json
 import urllib.request
-from datetime import datetime
+from concurrent.futures import ThreadPoolExecutor
+from datetime import datetime, timedelta
 from pathlib import Path
 from typing import Any
 
@@ -301,3 +302,84 @@ def test_a_database_gone_mid_run_is_a_503(make_app):
     response = solve(app.test_client())
     assert response.status_code == 503
     assert response.get_json()["type"] == "urn:certimatch:problem:store-unavailable"
+
+
+# -- Idempotency-Key -------------------------------------------------------------------
+
+
+def test_the_same_key_and_body_return_the_stored_bytes_and_record_nothing(make_app):
+    app = make_app()
+    client = app.test_client()
+    first = solve(client, **{"Idempotency-Key": "ticket-run-7"})
+    again = solve(client, **{"Idempotency-Key": "ticket-run-7"})
+    assert first.status_code == again.status_code == 200
+    assert again.data == first.data
+    assert log_size(app) == 1
+    # the draft's form, a Structured Fields string, names the same key
+    quoted = solve(client, **{"Idempotency-Key": '"ticket-run-7"'})
+    assert quoted.data == first.data and log_size(app) == 1
+
+
+def test_the_same_key_with_another_body_is_refused(make_app):
+    app = make_app()
+    client = app.test_client()
+    assert solve(client, **{"Idempotency-Key": "k-1"}).status_code == 200
+    refused = solve(client, FRACTIONAL, **{"Idempotency-Key": "k-1"})
+    assert refused.status_code == 422
+    assert refused.mimetype == "application/problem+json"
+    assert refused.get_json()["type"] == "urn:certimatch:problem:idempotency-key-reused"
+    assert "24 hours" in refused.get_json()["detail"]
+    assert log_size(app) == 1
+
+
+def test_keys_are_kept_per_caller(make_app):
+    app = make_app(TOKENS=f"{TOKEN_NAMED},{TOKEN_PLAIN}")
+    client = app.test_client()
+    one = solve(client, **{"Idempotency-Key": "shared", "Authorization": f"Bearer {TOKEN_NAMED}"})
+    two = solve(client, FRACTIONAL, **{"Idempotency-Key": "shared",
+                                       "Authorization": f"Bearer {TOKEN_PLAIN}"})
+    assert one.status_code == two.status_code == 200
+    assert one.get_json()["decision"]["id"] != two.get_json()["decision"]["id"]
+    assert log_size(app) == 2
+
+
+def test_a_key_expires_after_24_hours(make_app):
+    app = make_app()
+    client = app.test_client()
+    first = solve(client, **{"Idempotency-Key": "daily"})
+    store, _ = app.extensions["certimatch.recorder"].open()
+    later = datetime.fromisoformat(first.get_json()["decision"]["recorded_at"]) \
+        + timedelta(hours=24, seconds=1)
+    store.clock = lambda: later
+    reused = solve(client, FRACTIONAL, **{"Idempotency-Key": "daily"})
+    assert reused.status_code == 200
+    assert reused.get_json()["decision"]["log_index"] == 1
+
+
+def test_concurrent_requests_with_one_key_record_one_decision(make_app):
+    app = make_app()
+
+    def send(_: int) -> bytes:
+        return solve(app.test_client(), **{"Idempotency-Key": "burst"}).data
+
+    with ThreadPoolExecutor(4) as pool:
+        bodies = list(pool.map(send, range(8)))
+    assert len(set(bodies)) == 1
+    assert log_size(app) == 1
+
+
+def test_the_key_is_ignored_when_recording_is_off(make_app):
+    client = make_app(RECORD="off").test_client()
+    assert solve(client, **{"Idempotency-Key": "k"}).status_code == 200
+    assert solve(client, FRACTIONAL, **{"Idempotency-Key": "k"}).status_code == 200
+
+
+@pytest.mark.parametrize("value", ['""', "k" * 256, "caf\u00e9", '"open', '"a"b"', '"a\\x"'])
+def test_a_bad_key_is_a_400_naming_the_header(make_app, value):
+    response = make_app().test_client().post(
+        "/v1/solve", data=json.dumps(PROBLEM).encode(), content_type="application/json",
+        headers=[("Idempotency-Key", value.encode("utf-8").decode("latin-1"))])
+    assert response.status_code == 400
+    problem = response.get_json()
+    assert problem["type"] == "urn:certimatch:problem:invalid-parameter"
+    assert problem["parameter"] == "Idempotency-Key"
