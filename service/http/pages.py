@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import html
 import json
+import re
 import shlex
 from functools import cache
 from importlib import metadata
@@ -151,9 +152,24 @@ _ROUTES = {
     "/healthz": "liveness probe: the process answers",
     "/readyz": "readiness probe: the process has solved a 1 \u00d7 1 problem correctly",
     "/metrics": "Prometheus metrics",
+    "/v1/log/checkpoint": "the decision log's latest signed checkpoint",
+    "/v1/log/consistency": "a consistency proof between two sizes of the log (?from=M&to=N)",
+    "/v1/decisions": "decisions in log order (?after=ID&limit=N&caller=NAME)",
+    "/v1/decisions/{decision_id}": "one decision with its problem, answer and inclusion proof",
+    "/v1/decisions/{decision_id}/verify": "re-check a stored decision",
     "/": "this page",
 }
 _NAV = {"/v1/openapi.yaml": "OpenAPI document"}
+
+
+#: Routes that answer only with a query parameter the page cannot choose.
+_NEEDS_QUERY = {"/v1/log/consistency"}
+
+
+def _route_cell(path: str) -> str:
+    """The path as a link, or as text when following it bare would be an error."""
+    code = f"<code>{html.escape(path)}</code>"
+    return code if "{" in path or path in _NEEDS_QUERY else f'<a href="{path}">{code}</a>'
 
 
 def _routes() -> list[tuple[str, list[str]]]:
@@ -162,7 +178,9 @@ def _routes() -> list[tuple[str, list[str]]]:
     found: dict[str, set[str]] = {}
     for rule in current_app.url_map.iter_rules():
         if rule.endpoint != "static":
-            found.setdefault(rule.rule, set()).update(rule.methods or ())
+            # the path as openapi.yaml writes it: /v1/decisions/{decision_id}
+            path = re.sub(r"<(?:[^:<>]+:)?([^<>]+)>", r"{\1}", rule.rule)
+            found.setdefault(path, set()).update(rule.methods or ())
     order = list(_ROUTES)
     paths = sorted(found, key=lambda p: (order.index(p) if p in order else len(order), p))
     return [(p, sorted(found[p] - {"HEAD", "OPTIONS"})) for p in paths]
@@ -211,9 +229,11 @@ def home() -> Response:
         rows=rows, unmet=unmet, objective=answer["objective"],
         dual=answer["certificate"]["dual_objective"],
         nav="".join(f'<a href="{path}">{html.escape(_NAV.get(path, path))}</a>'
-                    for path, methods in routes if "GET" in methods and path != "/"),
-        routes="".join(f'<tr><td>{", ".join(methods)}</td><td><a href="{path}"><code>{path}'
-                       f"</code></a></td><td>{html.escape(_ROUTES.get(path, ''))}</td></tr>\n"
+                    for path, methods in routes
+                    if "GET" in methods and path != "/" and "{" not in path
+                    and path not in _NEEDS_QUERY),
+        routes="".join(f'<tr><td>{", ".join(methods)}</td><td>{_route_cell(path)}</td>'
+                       f"<td>{html.escape(_ROUTES.get(path, ''))}</td></tr>\n"
                        for path, methods in routes))
     response = Response(page, content_type="text/html; charset=utf-8")
     # No script and nothing from elsewhere: the policy says so to the browser as well.
