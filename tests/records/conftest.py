@@ -14,6 +14,7 @@ from typing import Any
 
 import pytest
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
+from flask.testing import FlaskClient
 from postgres_server import postgres_schema
 from records_helpers import Clock
 from servers import clean_app
@@ -56,14 +57,24 @@ def signer() -> Signer:
     return Signer(Ed25519PrivateKey.generate())
 
 
+class BufferedClient(FlaskClient):
+    """A test client whose answers are read whole and closed at once, as a server sends
+    them: the view's clean-up (the collector back on) runs before the test goes on."""
+
+    def open(self, *args: Any, **kwargs: Any) -> Any:
+        kwargs.setdefault("buffered", True)
+        return super().open(*args, **kwargs)
+
+
 @pytest.fixture
 def new_app():
-    """``new_app(config)``: ``clean_app``, its store closed after the test (a pooled
-    PostgreSQL connection left open warns when it is collected)."""
+    """``new_app(config)``: ``clean_app`` with a :class:`BufferedClient`, its store closed
+    after the test (a pooled PostgreSQL connection left open warns when collected)."""
     made: list[Any] = []
 
     def build(config: dict[str, Any]) -> Any:
         made.append(clean_app(config))
+        made[-1].test_client_class = BufferedClient
         return made[-1]
 
     yield build
