@@ -34,17 +34,22 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import connected_components, dijkstra
+from scipy.sparse.csgraph import dijkstra
 
 from service.errors import CertificateFailure, OutOfRange
 from service.network.model import Flow, Network
 from service.solve import residual
+from service.solve.branching import (
+    INF,
+    leftover_cycles,
+    natural_caps,
+    near,
+    two_smallest,
+)
 from service.solve.certificate import Certificate
 
 __all__ = ["INF", "Frontier", "Plan", "Ranked", "rank"]
 
-#: Upper bound of an unbounded arc (a matrix cell, an arc without capacity).
-INF = 2**62
 #: Float64 distances are exact integers below this.
 _EXACT = 2.0**53
 
@@ -119,7 +124,7 @@ def rank(net: Network, cert: Certificate, user_flow: Flow, k: int) -> Ranked:
     tail = np.concatenate([arcs.tail, ext.tail])
     head = np.concatenate([arcs.head, ext.head])
     cost = np.concatenate([arcs.cost, ext.cost])
-    cap = np.concatenate([_natural_caps(net), ext.capacity])
+    cap = np.concatenate([natural_caps(net), ext.capacity])
     x = np.concatenate([residual.user_flow(net, user_flow), cert.virtual_flow])
     out = Ranked([], [], m, tail, head, cost, cap)
     root = Plan(x, cert.potential.astype(np.int64), cert.primal,
@@ -128,60 +133,100 @@ def rank(net: Network, cert: Certificate, user_flow: Flow, k: int) -> Ranked:
     return out
 
 
-def _natural_caps(net: Network) -> np.ndarray:
-    """The most any plan can put on each user arc: its capacity, and no more than its
-    source's supply when nothing enters that source, nor its sink's demand when nothing
-    leaves that sink (INF when none of these binds)."""
-    arcs = net.arcs
-    top = np.where(arcs.bounded, arcs.capacity, INF)
-    entered = np.zeros(net.n_user, bool)
-    entered[arcs.head] = True
-    left = np.zeros(net.n_user, bool)
-    left[arcs.tail] = True
-    supply = np.full(net.n_user, INF, np.int64)
-    supply[: net.n_sources] = np.where(entered[: net.n_sources], INF, net.supply)
-    demand = np.full(net.n_user, INF, np.int64)
-    demand[net.sink_offset:] = np.where(left[net.sink_offset:], INF, net.demand)
-    return np.minimum(top, np.minimum(supply[arcs.tail], demand[arcs.head]))
-
-
 class _Search:
-    """Best-first search over cells; ``best`` holds the k smallest candidate values."""
+    """Best-first search over cells; ``best`` holds the k smallest exact values found.
+
+    The queue holds children with their exact value (``exact``) or, until they reach the
+    front, a cheap lower bound from the parent's potentials and one node's residual arcs
+    (:meth:`cheap`); a child is searched in full only when its bound comes first.
+    """
 
     def __init__(self, net: Network, out: Ranked, k: int) -> None:
         self.net, self.out, self.k = net, out, k
         self.n_nodes = net.n_user + 3
-        self.queue: list[tuple[int, int, int, int, str, int, np.ndarray, np.ndarray]] = []
+        self.queue: list[tuple[int, int, bool, int, int, str, int, np.ndarray,
+                               np.ndarray]] = []
         self.best: list[int] = []
         self.seq = 0
 
     def threshold(self) -> float:
         return float(self.best[self.k - 1]) if len(self.best) >= self.k else float("inf")
 
+    def push(self, key: int, exact: bool, j: int, i: int, side: str, shift: int,
+             nodes: np.ndarray, dist: np.ndarray) -> None:
+        self.seq += 1
+        heapq.heappush(self.queue, (key, self.seq, exact, j, i, side, shift, nodes, dist))
+
     def run(self, root: Plan) -> None:
         plans = self.out.plans
         plans.append(root)
         self.expand(0)
         while len(plans) - 1 < self.k and self.queue:
-            value, _, q, i, side, *_ = heapq.heappop(self.queue)
+            value, _, exact, q, i, side, *_ = heapq.heappop(self.queue)
+            if not exact:
+                self.evaluate(q, i, side)
+                continue
             plans.append(self.child_plan(q, i, side, value))
             if len(plans) - 1 < self.k:
                 self.expand(len(plans) - 1)
-        for value, _, q, i, side, shift, nodes, dist in self.queue:
+        left, self.queue = self.queue, []
+        for value, _, _, q, i, side, shift, nodes, dist in left:
+            if value >= INF:
+                self.evaluate(q, i, side)     # no residual arc at one end: prove it empty
+            else:
+                self.out.frontier.append(Frontier(q, i, side, "bound", value, shift, nodes,
+                                                  dist))
+        for value, _, _, q, i, side, shift, nodes, dist in self.queue:
             self.out.frontier.append(Frontier(q, i, side, "bound", value, shift, nodes, dist))
 
-    # -- expanding a plan: its branch list and every child's value or bound -----------------
+    # -- expanding a plan: its branch list and every child's bound --------------------------
 
     def expand(self, j: int) -> None:
         plan = self.out.plans[j]
         plan.branch = self.branch_list(plan)
         res = plan.residual = self.residual(plan)
+        g = res.graph
+        tails = np.repeat(np.arange(self.n_nodes), np.diff(g.indptr))
+        outs = two_smallest(tails, res.base, self.n_nodes)
+        ins = two_smallest(g.indices.astype(np.int64), res.base, self.n_nodes)
         for i, a in enumerate(plan.branch.tolist()):
+            for side in ("below", "above"):
+                if (plan.x[a] - 1 >= plan.lo[a]) if side == "below" else \
+                        (plan.x[a] + 1 <= plan.hi[a]):
+                    self.cheap(j, i, a, side, res, outs, ins)
+
+    def cheap(self, j: int, i: int, a: int, side: str, res: _Residual,
+              outs: tuple[np.ndarray, ...], ins: tuple[np.ndarray, ...]) -> None:
+        """Queue child (i, side) under a bound from labels that need no search: every
+        node at distance 0 but the target at its cheapest way in, or every node at the
+        source's cheapest way out (either is a lower bound on the target's distance)."""
+        plan, o = self.out.plans[j], self.out
+        u, v = int(o.tail[a]), int(o.head[a])
+        source, target = (u, v) if side == "below" else (v, u)
+        gain = int(-res.reduced[a] if side == "below" else res.reduced[a])
+        own = res.slots.get(a, np.zeros(0, np.int64))
+        way_out = outs[2][source] if outs[1][source] in own else outs[0][source]
+        way_in = ins[2][target] if ins[1][target] in own else ins[0][target]
+        if not np.isfinite(max(way_in, way_out)):
+            self.push(INF, False, j, i, side, 0, np.zeros(0, np.int64),
+                      np.zeros(0, np.int64))
+        elif way_in >= way_out:
+            self.push(plan.cost + gain + int(way_in), False, j, i, side, 0,
+                      np.array([target]), np.array([int(way_in)]))
+        else:
+            self.push(plan.cost + gain + int(way_out), False, j, i, side, int(way_out),
+                      np.array([source]), np.array([0]))
+
+    def evaluate(self, j: int, i: int, side: str) -> None:
+        """Search child (i, side) of plan j in full: queue its exact value, or record it in
+        the frontier when beyond the threshold or empty."""
+        plan = self.out.plans[j]
+        res = plan.residual
+        assert res is not None and plan.branch is not None
+        res.graph.data[:] = res.base
+        for a in plan.branch[: i + 1].tolist():
             self.mask(res, a)
-            if plan.x[a] - 1 >= plan.lo[a]:
-                self.child(j, i, a, "below", res)
-            if plan.x[a] + 1 <= plan.hi[a]:
-                self.child(j, i, a, "above", res)
+        self.child(j, i, int(plan.branch[i]), side, res)
 
     def child(self, j: int, i: int, a: int, side: str, res: _Residual) -> None:
         plan, o = self.out.plans[j], self.out
@@ -194,14 +239,12 @@ class _Search:
             o.frontier.append(Frontier(j, i, side, "bound", plan.cost + gain, 0,
                                        np.zeros(0, np.int64), np.zeros(0, np.int64)))
             return
-        dist = _near(res.graph, source, target, limit)
+        dist = near(res.graph, source, target, limit)
         reach = dist[target]
         if np.isfinite(reach):
             value, shift = plan.cost + gain + int(reach), int(reach)
             nodes = np.flatnonzero(dist < reach)
-            self.seq += 1
-            heapq.heappush(self.queue, (value, self.seq, j, i, side, shift, nodes,
-                                        dist[nodes].astype(np.int64)))
+            self.push(value, True, j, i, side, shift, nodes, dist[nodes].astype(np.int64))
             bisect.insort(self.best, value)
             del self.best[self.k:]
         elif np.isfinite(limit):
@@ -321,72 +364,10 @@ class _Search:
         free = (plan.lo[:m] < plan.hi[:m])
         chosen = np.flatnonzero(free & (plan.x[:m] > plan.lo[:m]))
         for _ in range(2):
-            on_cycle = _leftover_cycles(self.n_nodes, self.out, plan, chosen)
+            on_cycle = leftover_cycles(self.n_nodes, self.out, plan, chosen)
             if not on_cycle.any():
                 return chosen
             extra = np.flatnonzero(on_cycle[:m] & free)
             chosen = np.union1d(chosen, extra)
         # every user arc not fixed: the plan is then the only one left
         return np.union1d(chosen, np.flatnonzero(free))
-
-
-#: Nodes a shortest-path search settles itself before it hands over to scipy's Dijkstra.
-_BUDGET = 48
-
-
-def _near(graph: csr_matrix, source: int, target: int, limit: float) -> np.ndarray:
-    """Dijkstra's distances from ``source`` until ``target`` is settled or every distance
-    left exceeds ``limit``: exact for the nodes settled, inf for the others.
-
-    Most children of a cell are decided within a few nodes, so the first ``_BUDGET`` are
-    settled here, one array pass each, and only a larger search goes to scipy (whose every
-    call validates the whole graph first).
-    """
-    n = graph.shape[0]
-    indptr, indices, data = graph.indptr, graph.indices, graph.data
-    tent = np.full(n, np.inf)
-    dist = np.full(n, np.inf)
-    tent[source] = 0.0
-    for _ in range(_BUDGET):
-        node = int(np.argmin(tent))
-        d = tent[node]
-        if d == np.inf or d > limit:
-            return dist
-        dist[node] = d
-        tent[node] = np.inf
-        if node == target:
-            return dist
-        lo, hi = indptr[node], indptr[node + 1]
-        heads = indices[lo:hi]
-        cand = d + data[lo:hi]
-        open_ = np.isinf(dist[heads])
-        np.minimum.at(tent, heads[open_], cand[open_])
-    full = dijkstra(graph, indices=source, limit=limit)
-    settled = full <= min(limit, full[target])
-    return np.where(settled, full, np.inf)
-
-
-def _leftover_cycles(n: int, o: Ranked, plan: Plan, fixed_more: np.ndarray) -> np.ndarray:
-    """Mask of extended arcs that may lie on a cycle of the residual graph once the arcs
-    ``fixed_more`` are fixed at the plan's flow (none: the plan is the only one left).
-
-    Arcs with room both ways are undirected edges; each component they join is contracted
-    and the rest is a directed graph, whose strong components hold every cycle.
-    """
-    lo, hi = plan.lo.copy(), plan.hi.copy()
-    lo[fixed_more] = hi[fixed_more] = plan.x[fixed_more]
-    up, down = plan.x < hi, plan.x > lo
-    both = up & down
-    edges = csr_matrix((np.ones(int(both.sum())), (o.tail[both], o.head[both])), shape=(n, n))
-    n_comp, comp = connected_components(edges, directed=False)
-    on_cycle = np.zeros(len(o.tail), bool)
-    if both.sum() > n - n_comp:
-        on_cycle |= both                  # the undirected edges hold a cycle
-    one = up ^ down
-    t = np.where(up, o.tail, o.head)[one]
-    h = np.where(up, o.head, o.tail)[one]
-    ct, ch = comp[t], comp[h]
-    graph = csr_matrix((np.ones(len(ct)), (ct, ch)), shape=(n_comp, n_comp))
-    _, strong = connected_components(graph, directed=True, connection="strong")
-    on_cycle[np.flatnonzero(one)] = strong[ct] == strong[ch]
-    return on_cycle
