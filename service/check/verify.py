@@ -224,6 +224,11 @@ def _check_prices(checks: _Checks, net: Network, answer: dict[str, Any], arc: np
                   x: np.ndarray, pi: np.ndarray, virtual: tuple[np.ndarray, ...],
                   price_work: int | None) -> None:
     """The override prices, once the answer itself is proven optimal."""
+    if net.bottleneck:
+        checks.add("price_rows", "override prices are not defined for objective "
+                   "bottleneck", "")
+        checks.skip(PRICE_CHECKS[1:], "no prices for objective bottleneck")
+        return
     if not all(c["passed"] for c in checks.items):
         checks.skip(PRICE_CHECKS, "the answer itself is not proven optimal")
         return

@@ -57,6 +57,9 @@ def solve_body(body: Any, settings: Settings,
         data = clock.run("validate", _load, _problem_schema, body)
         net = clock.run("normalise", build_network, data, settings)
         if net.bottleneck:
+            if data.get("prices"):
+                raise InvalidProblem([{"pointer": "/prices", "detail": "override prices are "
+                                       "for min and max; objective bottleneck has none"}])
             answer = _solve_bottleneck(net, clock)
             clock.run("self_verify", self_check, net, answer)
             return answer

@@ -223,3 +223,17 @@ def test_a_proof_too_large_to_check_is_refused_naming_the_field(solve):
     assert resp.status_code == 413
     assert "/answer/certificate/prices" in body["detail"]
     assert "MAX_PRICES_WORK" in body["detail"]
+
+
+def test_bottleneck_has_no_prices(solve, verify):
+    status, body = solve({**ASSIGNMENT, "objective": "bottleneck", "prices": True})
+    assert status == 422
+    assert [e["pointer"] for e in body["errors"]] == ["/prices"]
+    status, answer = solve({**ASSIGNMENT, "objective": "bottleneck"})
+    assert status == 200
+    _, priced = solve({**ASSIGNMENT, "prices": True})
+    forged = {**answer, "prices": priced["prices"]}
+    forged["certificate"] = {**answer["certificate"],
+                             "prices": priced["certificate"]["prices"]}
+    problem = {**ASSIGNMENT, "objective": "bottleneck"}
+    assert "price_rows" in _refused(verify, problem, forged)
