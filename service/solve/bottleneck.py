@@ -84,6 +84,21 @@ def _costs(net: Network) -> np.ndarray:
     return np.unique(arcs.cost[~arcs.bounded | (arcs.capacity > 0)])
 
 
+def _cheapest_in(net: Network) -> int:
+    """The largest, over hard sinks with demand, of the cheapest pair into each (a lower
+    bound on the threshold when every hard demand is met); the least cost if none."""
+    off = net.sink_offset
+    need = ~net.soft & (net.demand > 0)
+    if net.dense is not None:
+        cheapest = net.dense.min(axis=0) if net.n_sources else np.full(net.n_sinks, FORBIDDEN)
+    else:
+        arcs = net.arcs
+        usable = (~arcs.bounded | (arcs.capacity > 0)) & (arcs.head >= off)
+        cheapest = np.full(net.n_sinks, FORBIDDEN, np.int64)
+        np.minimum.at(cheapest, arcs.head[usable] - off, arcs.cost[usable])
+    return int(cheapest[need].max()) if need.any() else -FORBIDDEN
+
+
 def solve_bottleneck(net: Network) -> Bottleneck:
     """The three stages; raises Infeasible when unmet hard demand is rejected."""
     whole = _shortfall(net)
@@ -95,9 +110,26 @@ def solve_bottleneck(net: Network) -> Bottleneck:
         return Bottleneck(replace(solution, shortfall=whole), within, None, None)
     costs = _costs(net)
     lo, hi = 0, len(costs) - 1          # the largest cost serves it: the whole network
+    if whole.amount == 0:
+        # every hard sink is then served, over some arc into it: the search starts at the
+        # largest of their cheapest incoming costs
+        lo = min(hi, int(np.searchsorted(costs, _cheapest_in(net))))
+
+    def serves(k: int) -> bool:
+        return _shortfall(restricted(net, int(costs[k]))).amount == whole.amount
+
+    # galloping up from the lower bound first: the networks probed stay small when the
+    # threshold is near it (the common case), then bisection (O(log k) probes either way)
+    step = 1
+    while lo < hi:                      # the threshold is within costs[lo..hi]
+        probe = min(hi, lo + step - 1)
+        if serves(probe):
+            hi = probe
+            break
+        lo, step = probe + 1, step * 2
     while lo < hi:
         mid = (lo + hi) // 2
-        if _shortfall(restricted(net, int(costs[mid]))).amount == whole.amount:
+        if serves(mid):
             hi = mid
         else:
             lo = mid + 1

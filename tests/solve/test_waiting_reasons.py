@@ -204,3 +204,41 @@ def test_reasons_may_be_left_out(solve: Any, verify: Any) -> None:
         row.pop("reduced_cost", None)
     _, verdict = verify(problem, answer)
     assert verdict["valid"]
+
+
+def _under_threshold(problem: dict[str, Any], answer: dict[str, Any]) -> dict[str, Any]:
+    """The problem as the last bottleneck stage sees it: pairs above the threshold cannot
+    carry flow (capacity 0), so neither eligibility's residual part nor a cheaper cycle may
+    use them; eligibility itself is the whole problem's (README, "Why a sink waits")."""
+    theta = answer["certificate"]["bottleneck"]["threshold"]
+    out = copy.deepcopy(problem)
+
+    def above(c: Any) -> bool:
+        return c is not None and (theta is None or Fraction(repr(c)) > Fraction(repr(theta)))
+
+    if "costs" in out:
+        out["arcs"] = [{"from": s["id"], "to": t["id"], "cost": c,
+                        **({"capacity": 0} if above(c) else {})}
+                       for s, row in zip(out["sources"], out.pop("costs"), strict=True)
+                       for t, c in zip(out["sinks"], row, strict=True) if c is not None]
+    else:
+        out["arcs"] = [{**a, "capacity": 0} if above(a["cost"]) else a for a in out["arcs"]]
+    return out
+
+
+BOTTLENECK = [(s, _waiting(np.random.default_rng([s, 80]), s)) for s in range(200)]
+
+
+@pytest.mark.parametrize(("seed", "problem"), BOTTLENECK, ids=[str(s) for s, _ in BOTTLENECK])
+def test_reasons_under_the_bottleneck_objective(solve: Any, verify: Any, seed: int,
+                                                problem: dict[str, Any]) -> None:
+    problem = {**problem, "objective": "bottleneck"}
+    status, answer = solve(problem)
+    assert status == 200
+    fed = _expected_reasons(problem, answer)
+    within = _expected_reasons(_under_threshold(problem, answer), answer)
+    want = {t: "no-eligible-source" if fed[t] == "no-eligible-source" else
+            ("capacity" if within[t] != "penalty" else "penalty") for t in fed}
+    assert {row["id"]: row["reason"] for row in answer["unmet"]} == want
+    status, verdict = verify(problem, answer)
+    assert status == 200 and verdict["valid"], verdict
