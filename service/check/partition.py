@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 
-from service.check import cells
+from service.check import cells, frontier
 from service.check.checks import _Checks
 from service.check.exact import _grid_value, _grid_values, _show
 from service.check.flows import _allocation
@@ -183,8 +183,13 @@ def _check(net: Network, answer: dict[str, Any], requested: int | None, verify: 
             rank = np.full(len(tab.cap), -1, np.int64)
             rank[branch] = np.arange(len(branch))
         ranks.append(rank)
+    pending: dict[int, list[tuple]] = {}
     for f in frontier:
-        _frontier_holds(net, tab, f, flows, pis, lo, hi, branches, ranks, costs, last, index)
+        item = _frontier_holds(net, tab, f, flows, lo, hi, branches, ranks, last, index)
+        if item is not None:
+            pending.setdefault(f["parent"], []).append(item)
+    for q, items in pending.items():
+        _bounds_hold(net, tab, q, items, flows, pis, lo, hi, branches, ranks, costs, last)
     checks.add("partition_bounds", None, "no frontier cell holds a plan ranking before the last "
            "alternative" if last is not None else "every frontier cell is empty: no plan "
            "is left")
@@ -297,10 +302,11 @@ def _bounds_at(lo: list[np.ndarray], hi: list[np.ndarray], flows: list[np.ndarra
 
 
 def _frontier_holds(net: Network, tab: cells.Table, f: dict[str, Any],
-                    flows: list[np.ndarray], pis: list[np.ndarray], lo: list[np.ndarray],
-                    hi: list[np.ndarray], branches: list[np.ndarray | None],
-                    ranks: list[np.ndarray | None], costs: list[int], last: int | None,
-                    index: dict[str, int]) -> None:
+                    flows: list[np.ndarray], lo: list[np.ndarray], hi: list[np.ndarray],
+                    branches: list[np.ndarray | None], ranks: list[np.ndarray | None],
+                    last: int | None, index: dict[str, int]) -> tuple | None:
+    """Check an empty cell's proof here; read a bound's proof, for :func:`_bounds_hold`:
+    (key, nodes, distances, shift, reported bound), all on the grid."""
     key = (f["parent"], f["branch"], f["side"])
     q = f["parent"]
     branch = branches[q]
@@ -315,7 +321,7 @@ def _frontier_holds(net: Network, tab: cells.Table, f: dict[str, Any],
         if not cells.holds_no_plan(tab, nodes, where, l_c, h_c):
             raise _Refused("partition_bounds", f"frontier cell {key}: the node set given "
                            "does not prove the cell empty")
-        return
+        return None
     if last is None:
         raise _Refused("partition_bounds", f"frontier cell {key}: fewer alternatives than "
                        "requested, yet this cell is not proved empty")
@@ -327,29 +333,73 @@ def _frontier_holds(net: Network, tab: cells.Table, f: dict[str, Any],
     nodes = _nodes(net, list(keys), list(virtual), index, key)
     dist, not_whole = _grid_values(np.append(values, list(virtual.values())), scale)
     shift = _grid_value(f["shift"], scale)
-    if shift is None or bool(not_whole.any()):
-        raise _Refused("partition_bounds", f"frontier cell {key}: distances off the grid")
+    reported = _grid_value(f["bound"], scale)
+    if shift is None or reported is None or bool(not_whole.any()):
+        raise _Refused("partition_bounds", f"frontier cell {key}: numbers off the grid")
+    return key, nodes, dist, shift, reported
+
+
+def _bounds_hold(net: Network, tab: cells.Table, q: int, items: list[tuple],
+                 flows: list[np.ndarray], pis: list[np.ndarray], lo: list[np.ndarray],
+                 hi: list[np.ndarray], branches: list[np.ndarray | None],
+                 ranks: list[np.ndarray | None], costs: list[int], last: int | None
+                 ) -> None:
+    """Every bound of plan q's frontier cells, recomputed (all at once when int64 holds
+    the sums, else cell by cell) and compared with the reported one and the last cost."""
+    branch, rank = branches[q], ranks[q]
+    assert branch is not None and rank is not None and last is not None
+    found = None
+    dists = [item[2] for item in items]
+    if all(d.dtype != object for d in dists):
+        sizes = [len(item[1]) for item in items]
+        found = frontier.bounds(
+            tab, flows[q], pis[q], lo[q], hi[q], rank, branch, costs[q],
+            np.array([item[0][1] for item in items], np.int64),
+            np.array([item[0][2] == "below" for item in items]),
+            np.array([item[3] for item in items], np.int64),
+            np.repeat(np.arange(len(items)), sizes),
+            np.concatenate([item[1] for item in items]).astype(np.int64),
+            np.concatenate(dists).astype(np.int64))
+    for c, (key, nodes, dist, shift, reported) in enumerate(items):
+        if found is not None:
+            bound: int | None = None if found[1][c] else int(found[0][c])
+        else:
+            bound = _slow_bound(tab, key, nodes, dist, shift, flows, pis, lo, hi, branches,
+                                ranks, costs)
+        if bound is None:
+            raise _Refused("partition_bounds", f"frontier cell {key}: an unbounded arc gets "
+                           "a negative reduced cost")
+        scale = net.cost_scale
+        if reported != net.sign * bound:
+            raise _Refused("partition_bounds", f"frontier cell {key}: bound is "
+                           f"{_show(reported, scale)}, recomputed "
+                           f"{_show(net.sign * bound, scale)}")
+        if bound < last:
+            raise _Refused("partition_bounds", f"frontier cell {key}: its bound "
+                           f"{_show(net.sign * bound, scale)} ranks before the last "
+                           "alternative")
+
+
+def _slow_bound(tab: cells.Table, key: tuple[int, int, str], nodes: np.ndarray,
+                dist: np.ndarray, shift: int, flows: list[np.ndarray], pis: list[np.ndarray],
+                lo: list[np.ndarray], hi: list[np.ndarray], branches: list[np.ndarray | None],
+                ranks: list[np.ndarray | None], costs: list[int]) -> int | None:
+    """One cell's bound in exact arithmetic, whatever the size of its numbers."""
+    q = key[0]
+    branch = branches[q]
+    assert branch is not None
     base = pis[q]
     kind = object if base.dtype == object or dist.dtype == object else np.int64
     pi = base.astype(kind) - shift       # answer numbers stay below 2**53: no wrap in int64
     pi[nodes] = base[nodes].astype(kind) - dist.astype(kind)
     inside = _mask(tab, nodes)
-    a = int(branch[f["branch"]])
+    a = int(branch[key[1]])
     where = tab.touching(nodes, inside)
     if not (inside[tab.tail[a]] or inside[tab.head[a]]):
         where = np.append(where, a)
     l_c, h_c = _bounds_at(lo, hi, flows, ranks, key, where)
     g = cells.gaps(tab, pi, flows[q], l_c, h_c, where)
-    if g is None:
-        raise _Refused("partition_bounds", f"frontier cell {key}: an unbounded arc gets a "
-                       "negative reduced cost")
-    bound = costs[q] - g
-    if _grid_value(f["bound"], scale) != net.sign * bound:
-        raise _Refused("partition_bounds", f"frontier cell {key}: bound is {f['bound']}, "
-                       f"recomputed {_show(net.sign * bound, scale)}")
-    if bound < last:
-        raise _Refused("partition_bounds", f"frontier cell {key}: its bound "
-                       f"{_show(net.sign * bound, scale)} ranks before the last alternative")
+    return None if g is None else costs[q] - g
 
 
 def _mask(tab: cells.Table, nodes: np.ndarray) -> np.ndarray:

@@ -150,3 +150,26 @@ def test_out_of_order_alternatives_are_refused():
     assert costs != sorted(costs, reverse=True)       # at least two differ
     alts.reverse()
     assert _failed(ARCS, 3, answer)
+
+
+@pytest.mark.parametrize("seed", range(0, 60, 3))
+def test_bounds_in_bulk_are_the_bounds_cell_by_cell(seed, monkeypatch):
+    # The verifier sums the frontier's bounds for all cells of a plan at once; with that
+    # bulk path declined, cell by cell in exact arithmetic: the verdicts must agree, on
+    # honest answers and on ones with a shifted distance. (Internal consistency of the
+    # checker; the honest answers themselves are held to networkx in
+    # tests/solve/test_alternatives.py.)
+    from service.check import frontier
+    from tests.solve.test_alternatives import larger_problem
+
+    problem = larger_problem(seed)
+    answer = _answer(problem, 4)
+    forged = copy.deepcopy(answer)
+    entry = next((f for f in forged["partition"]["frontier"] if f.get("distances")), None)
+    if entry is not None:
+        node = next(iter(entry["distances"]))
+        entry["distances"][node] += 1
+    bulk = [_failed(problem, 4, answer), _failed(problem, 4, forged)]
+    monkeypatch.setattr(frontier, "bounds", lambda *args: None)
+    assert [_failed(problem, 4, answer), _failed(problem, 4, forged)] == bulk
+    assert bulk[0] == []
