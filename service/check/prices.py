@@ -52,9 +52,10 @@ def check_prices(checks: _Checks, g: ResidualArcs, pairs: dict[str, np.ndarray],
     """Add the four price checks to ``checks``.
 
     ``pairs``: per allowed pair in the problem's order, ``tail``, ``head``, ``id`` (arc
-    id), ``flow``, ``reduced`` (forward reduced cost) and ``room`` (bool: may grow).
-    Raises TooLarge when checking the proof would take more than ``max_work``: each
-    distance row and each set of labels is read against every residual arc.
+    id), ``flow``, ``reduced`` (forward reduced cost), ``room`` (bool: may grow), and
+    ``from``, ``to`` (lists of the end points' ids). Raises TooLarge when checking the
+    proof would take more than ``max_work``: each distance row and each set of labels is
+    read against every residual arc.
     """
     if max_work is not None and isinstance(proof, dict):
         rows_given = len(proof["roots"]) if isinstance(proof.get("roots"), list) else 0
@@ -101,6 +102,11 @@ def _rows(g: ResidualArcs, pairs: dict[str, np.ndarray], rows: Any, scale: int
     if len(rows) != n:
         return f"{len(rows)} price rows for {n} allowed pairs"
     c = rows.columns
+    if c["from"] != pairs["from"] or c["to"] != pairs["to"]:
+        at = next(k for k in range(n) if (c["from"][k], c["to"][k])
+                  != (pairs["from"][k], pairs["to"][k]))
+        return (f"row {at} names {c['from'][at]} -> {c['to'][at]}, the pair there is "
+                f"{pairs['from'][at]} -> {pairs['to'][at]}")
     flow = c["flow"]
     if (np.asarray(flow) != pairs["flow"]).any():
         return f"row {int(np.argmax(np.asarray(flow) != pairs['flow']))}: flow differs"
@@ -200,7 +206,10 @@ def _forbid_differs(g: ResidualArcs, pairs: dict[str, np.ndarray], claimed: np.n
         return (f"pair {p}: the rerouting flow costs {_show(int(high[differ[0]]), scale)}, "
                 f"the lower bound is {_show(int(low[p]), scale)}")
     want = np.where(x > 0, INF, 0)
-    want[shown] = x[shown] * -r[shown] + high
+    lost = _products(x[shown], -r[shown])
+    if lost.dtype == object or (len(lost) and int(lost.max()) >= INF):
+        return "taking a pair's units off costs beyond 2**61: out of range"
+    want[shown] = lost + high
     return _first_mismatch(claimed, want, "forbid_delta", scale)
 
 

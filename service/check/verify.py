@@ -240,7 +240,9 @@ def _check_prices(checks: _Checks, net: Network, answer: dict[str, Any], arc: np
     np.add.at(flow, arc if net.arc_list is not None else np.searchsorted(arcs.id, arc), x)
     reduced = arcs.cost - pi[arcs.tail] + pi[arcs.head]
     pairs = {"tail": arcs.tail, "head": arcs.head, "id": arcs.id, "flow": flow,
-             "reduced": reduced, "room": ~arcs.bounded | (flow < arcs.capacity)}
+             "reduced": reduced, "room": ~arcs.bounded | (flow < arcs.capacity),
+             "from": [net.ids[i] for i in arcs.tail.tolist()],
+             "to": [net.ids[i] for i in arcs.head.tolist()]}
     g = residual_arcs(net.n_user + 3, (arcs.tail, arcs.head, arcs.id, reduced,
                                        arcs.capacity, arcs.bounded, flow), virtual)
     check_prices(checks, g, pairs, answer["prices"], answer["certificate"].get("prices"),

@@ -237,3 +237,12 @@ def test_bottleneck_has_no_prices(solve, verify):
                              "prices": priced["certificate"]["prices"]}
     problem = {**ASSIGNMENT, "objective": "bottleneck"}
     assert "price_rows" in _refused(verify, problem, forged)
+
+
+def test_rows_that_name_other_pairs(honest, verify):
+    problem, answer = honest
+    forged = copy.deepcopy(answer)
+    forged["prices"][0]["to"] = forged["prices"][-1]["to"]
+    if forged["prices"][0]["to"] == answer["prices"][0]["to"]:
+        forged["prices"][0]["from"] = forged["prices"][-1]["from"]
+    assert _refused(verify, problem, forged) == {"price_rows"}
