@@ -183,3 +183,21 @@ def test_the_svg_alone_does_not_point_to_a_table_it_lacks():
     assert "format=html" in words          # it says where the summary is instead
     page, _ = build_report(copy.deepcopy(body), SETTINGS, "html")
     assert "The table of reduced costs below" in page and "<table" in page
+
+
+def test_the_page_shows_the_threshold_and_why_each_sink_waits():
+    # worked by hand: bottleneck pairs a-y and b-x (60 each); z is reachable only over 90,
+    # above the threshold, and c is its only server: it waits for capacity within 60
+    problem = {"sources": [{"id": "a"}, {"id": "b"}, {"id": "c"}],
+               "sinks": [{"id": "x"}, {"id": "y"}, {"id": "z", "penalty": 500},
+                         {"id": "w", "penalty": 5}],
+               "costs": [[1, 60, None, None], [60, 100, None, None], [None, None, 90, None]],
+               "objective": "bottleneck"}
+    body = {**problem, "answer": solve_body(problem, SETTINGS)}
+    page = _text(render(body, verify_body(copy.deepcopy(body), SETTINGS)))
+    assert "longest trip (bottleneck threshold) 60" in page
+    assert "capacity: whoever could serve it is full" in page
+    assert "no eligible source: nothing can reach it" in page
+    assert any(holds and "waits for the reason given" in text
+               for holds, text in _items(render(body, verify_body(copy.deepcopy(body),
+                                                                  SETTINGS))))
