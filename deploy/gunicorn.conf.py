@@ -152,6 +152,22 @@ _OWN_DIR_PREFIX = "certimatch-metrics-"
 _METRIC_FILES = ("counter_*.db", "gauge_*.db", "histogram_*.db", "summary_*.db")
 
 
+def _open_the_store_once() -> None:
+    """The decision store and its signing key, checked (and on an empty database created)
+    by the master before any worker starts: workers then never race to create them, and a
+    schema that is behind stops the server with one line saying what to run, instead of
+    every worker failing to boot."""
+    from service.http.recording import Recorder
+    from service.records.config import RecordSettings
+    from service.records.errors import SchemaNotCurrent, StoreUnavailable
+    from service.records.signing import KeyFileError
+
+    try:
+        Recorder(RecordSettings.of(load_settings())).close()
+    except (SchemaNotCurrent, StoreUnavailable, KeyFileError, ValueError) as e:
+        raise SystemExit(f"certimatch: {e}") from None
+
+
 def on_starting(server: Any) -> None:
     """In the master, before any worker: the exposure check, metrics directory, logging."""
     # Checked here, not at import: server.cfg.bind includes a --bind given on the command
@@ -165,6 +181,7 @@ def on_starting(server: Any) -> None:
         raise SystemExit(f"certimatch: {e}") from None
     if warning:
         print(f"certimatch: warning: {warning}", file=sys.stderr, flush=True)
+    _open_the_store_once()
     path = os.environ.get("PROMETHEUS_MULTIPROC_DIR")
     if path:
         # A directory given by the operator may hold the files of a previous run, whose

@@ -613,3 +613,45 @@ def test_unit_metrics_dir_is_a_runtime_directory():
     env = dict(item.split("=", 1) for item in shlex.split(service["Environment"]))
     runtime = {"/run/" + d for d in service["RuntimeDirectory"].split()}
     assert env["PROMETHEUS_MULTIPROC_DIR"] in runtime
+
+
+def test_on_starting_creates_the_store_once_before_any_worker(monkeypatch, tmp_path,
+                                                              no_logging_setup):
+    conf = load_conf(monkeypatch, {"CERTIMATCH_DATA_DIR": str(tmp_path / "data")})
+    conf["on_starting"](LOOPBACK_SERVER)
+    try:
+        assert (tmp_path / "data" / "decisions.sqlite3").is_file()
+        assert (tmp_path / "data" / "signing-key.pem").is_file()
+    finally:
+        conf["on_exit"](None)
+
+
+def test_on_starting_refuses_a_store_whose_schema_is_behind(monkeypatch, tmp_path,
+                                                            no_logging_setup):
+    import sqlite3
+    from contextlib import closing
+
+    (tmp_path / "data").mkdir()
+    with closing(sqlite3.connect(tmp_path / "data" / "decisions.sqlite3")) as db:
+        db.execute("CREATE TABLE parts_on_hand (id INTEGER)")
+        db.commit()
+    conf = load_conf(monkeypatch, {"CERTIMATCH_DATA_DIR": str(tmp_path / "data")})
+    with pytest.raises(SystemExit, match=r"^certimatch: .*run `certimatch db upgrade`"):
+        conf["on_starting"](LOOPBACK_SERVER)
+
+
+def test_every_deployment_gives_the_store_a_writable_place():
+    # The default DATA_DIR is relative to the working directory, which none of the three
+    # may write: each names one (or, on Kubernetes, a PostgreSQL database and a key file).
+    env = dict(item.split("=", 1)
+               for item in shlex.split(_unit()["Service"]["Environment"]))
+    assert env[ENV_PREFIX + "DATA_DIR"] == "/var/lib/" + _unit()["Service"]["StateDirectory"]
+    assert _image_env()[ENV_PREFIX + "DATA_DIR"] == "/var/lib/certimatch"
+    assert "chown 10001:10001 /var/lib/certimatch" in CONTAINERFILE.read_text()
+    container = _container()
+    names = {e["name"]: e for e in container["env"]}
+    assert "secretKeyRef" in names[ENV_PREFIX + "DATABASE_URL"]["valueFrom"]
+    key_dir = str(Path(names[ENV_PREFIX + "SIGNING_KEY_FILE"]["value"]).parent)
+    mounts = {m["mountPath"]: m["name"] for m in container["volumeMounts"]}
+    volumes = {v["name"]: v for v in _one("Deployment")["spec"]["template"]["spec"]["volumes"]}
+    assert "secret" in volumes[mounts[key_dir]]

@@ -23,7 +23,17 @@ from typing import Any
 import pytest
 import requests
 from prometheus_client.parser import text_string_to_metric_families
-from servers import CONFIG, DATA_DIR_ENV, GOOD, GOOD_OBJECTIVE, ROOT, Gunicorn, gunicorn, wait_for
+from servers import (
+    CONFIG,
+    DATA_DIR_ENV,
+    GOOD,
+    GOOD_OBJECTIVE,
+    ROOT,
+    Gunicorn,
+    gunicorn,
+    shell_setting,
+    wait_for,
+)
 
 from service.settings import SETTINGS
 
@@ -44,7 +54,7 @@ def clean_env(monkeypatch: pytest.MonkeyPatch) -> None:
 
 def _server_env(tmp_path: Path) -> dict[str, str]:
     env = {k: v for k, v in os.environ.items()
-           if not k.startswith("CERTIMATCH_") and k != "PROMETHEUS_MULTIPROC_DIR"}
+           if not shell_setting(k) and k != "PROMETHEUS_MULTIPROC_DIR"}
     runtime = tmp_path / "runtime"
     runtime.mkdir(exist_ok=True)
     env["XDG_RUNTIME_DIR"] = str(runtime)      # gunicorn's control socket: one per server
