@@ -25,6 +25,17 @@ class AllocationRowSchema(Schema):
     flow = fields.Integer(required=True, metadata={"bound": MAX_ANSWER_VALUE})
     cost = fields.Float(metadata={"bound": MAX_ANSWER_VALUE})
     arc = fields.Integer(metadata={"description": "index into the request's arcs"})
+    fixed = fields.Boolean(metadata={"description": "true on a pinned arc (see /fixed); "
+                                                   "checked when present"})
+
+
+class ChangesSchema(Schema):
+    """Against ``previous``: units kept on their pair, units moved (not kept, those on
+    vanished pairs included), and what the moves cost (change_penalty x moved)."""
+
+    kept = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
+    moved = Number(kind="count", required=True, bound=MAX_ANSWER_VALUE)
+    penalty = Number(required=True, bound=MAX_ANSWER_VALUE)
 
 
 class AmountSchema(Schema):
@@ -231,6 +242,8 @@ class AnswerSchema(Schema):
         "description": "the next-best plans, best first (README, 'Ranked alternatives')"})
     partition = fields.Nested(PartitionSchema)
     decision = fields.Nested(DecisionSchema)
+    changes = fields.Nested(ChangesSchema, metadata={
+        "description": "with previous: what the plan keeps and moves; checked when present"})
 
 
 class SolveResultSchema(AnswerSchema):

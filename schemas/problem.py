@@ -31,8 +31,27 @@ def _data_field() -> fields.Dict:
 
 #: The lists of records, each of which may be sent in the columnar form instead.
 TABLES = ("sources", "sinks", "nodes", "arcs")
+#: Most entries of one source's load_costs.
+MAX_LOAD_COSTS = 100_000
 #: The columns of an arc that name ids.
 ARC_ENDS = ("from", "to")
+
+
+class LoadCosts(fields.List):
+    """A source's extra cost of its 1st, 2nd, ... unit sent: finite numbers, non-decreasing
+    (a convex workload cost); the last value repeats up to the supply."""
+
+    def __init__(self, **kwargs: Any) -> None:
+        super().__init__(Number(), validate=validate.Length(min=1, max=MAX_LOAD_COSTS),
+                         **kwargs)
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Any:
+        costs: list[Any] = super()._deserialize(value, attr, data, **kwargs)
+        for j in range(1, len(costs)):
+            if costs[j] < costs[j - 1]:
+                raise ValidationError({j: [f"must be at least the entry before it "
+                                           f"({costs[j - 1]}): load costs are non-decreasing"]})
+        return costs
 
 
 class SourceSchema(Schema):
@@ -41,6 +60,8 @@ class SourceSchema(Schema):
     id = fields.String(required=True)
     supply = fields.Integer(load_default=1, metadata={"description": "units it can send at most"})
     data = _data_field()
+    load_costs = LoadCosts(metadata={"description": "extra cost of the 1st, 2nd, ... unit "
+                                                    "sent, non-decreasing; the last repeats"})
 
 
 class SinkSchema(Schema):
@@ -69,6 +90,38 @@ class ArcSchema(Schema):
     capacity = fields.Integer(allow_none=True)
 
 
+class PinSchema(Schema):
+    """A pin: the pair (or the arc ``arc``) carries exactly ``flow`` units."""
+
+    from_ = fields.String(required=True, data_key="from")
+    to = fields.String(required=True)
+    flow = fields.Integer(required=True)
+    arc = fields.Integer(metadata={"description": "index into the request's arcs"})
+
+
+class PreviousRowSchema(Schema):
+    """A row of the previous plan: units on a pair; an answer's rows may be passed as they
+    are (``cost`` and ``fixed`` are then ignored, ``arc`` names the arc)."""
+
+    from_ = fields.String(required=True, data_key="from")
+    to = fields.String(required=True)
+    flow = fields.Integer(required=True)
+    arc = fields.Integer(metadata={"description": "index into the request's arcs"})
+    cost = fields.Float(metadata={"description": "ignored"})
+    fixed = fields.Boolean(metadata={"description": "ignored"})
+
+
+class PreviousSchema(Schema):
+    """The plan being replaced and the cost of each of its units not kept on its pair."""
+
+    class Meta:
+        unknown = RAISE
+
+    allocation = RecordList(PreviousRowSchema, required=True)
+    change_penalty = Number(required=True, validate=validate.Range(min=0),
+                            metadata={"minimum": 0})
+
+
 class ProblemSchema(Schema):
     """A whole problem; exactly one of ``costs`` and ``arcs``.
 
@@ -84,6 +137,8 @@ class ProblemSchema(Schema):
     costs = CostMatrix()
     arcs = RecordList(ArcSchema, references=ARC_ENDS, declared_in=ID_TABLES, columnar=True)
     objective = fields.String(load_default="min", validate=validate.OneOf(OBJECTIVES))
+    fixed = RecordList(PinSchema, metadata={"description": "pins: pairs whose flow is fixed"})
+    previous = fields.Nested(PreviousSchema)
     unmet_demand = fields.String(load_default="minimize",
                                  validate=validate.OneOf(UNMET_POLICIES))
     prices = StrictBoolean(load_default=False, metadata={

@@ -29,6 +29,17 @@ class WitnessSchema(Schema):
     shortfall = fields.Integer(required=True)
 
 
+class PinsWitnessSchema(Schema):
+    """Pins that cannot be routed: a pin above its capacity, or a set of nodes whose pins
+    bring in (``in``) or take out (``out``) more than the other arcs can carry."""
+
+    pins = fields.List(fields.String(), required=True)
+    ids = fields.List(fields.String(), required=True)
+    limit = fields.String(required=True)
+    pinned = fields.Integer(required=True)
+    available = fields.Integer(required=True)
+
+
 class ProblemDocumentSchema(Schema):
     type = fields.String(required=True)
     title = fields.String(required=True)

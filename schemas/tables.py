@@ -72,6 +72,8 @@ class Table:
 def _column_kind(f: fields.Field) -> str:
     if isinstance(f, fields.Dict):
         return "object"
+    if isinstance(f, fields.List):
+        return "field"
     if isinstance(f, fields.Boolean):
         return "flag"
     if isinstance(f, fields.Integer):
@@ -208,6 +210,10 @@ class RecordList(fields.Field):
             table.columns[key] = col
             table.present[key] = present
             return int(np.count_nonzero(present))
+        if kind == "field":
+            table.columns[key], present = _each(col, f, key, errors)
+            table.present[key] = present
+            return int(np.count_nonzero(present))
         if kind == "flag":
             vals, present, bad = _flags(col, nullable=optional)
             for i in bad:
@@ -261,7 +267,7 @@ class RecordList(fields.Field):
     @staticmethod
     def _absent(table: Table, key: str, kind: str, default: Any) -> None:
         """Fill a column no record has: its default, or zeros marked not present."""
-        if kind == "object":
+        if kind in ("object", "field"):
             table.columns[key] = [None] * table.length
             table.present[key] = np.zeros(table.length, bool)
             return
@@ -271,6 +277,20 @@ class RecordList(fields.Field):
             table.present[key] = np.zeros(table.length, bool)
         else:
             table.columns[key] = np.full(table.length, default, dtype)
+
+
+def _each(col: list[Any], f: fields.Field, key: str, errors: dict
+          ) -> tuple[list[Any], np.ndarray]:
+    """A column of lists, each loaded by its own field where present (null is absent):
+    such columns are short or rare (a source's load costs)."""
+    present = np.fromiter(map(is_not, col, repeat(None)), bool, len(col))
+    out: list[Any] = [None] * len(col)
+    for i in np.flatnonzero(present).tolist():
+        try:
+            out[i] = f.deserialize(col[i])
+        except ValidationError as e:
+            errors.setdefault(i, {})[key] = e.messages
+    return out, present
 
 
 def _ids_of(rows: Any) -> Any:

@@ -97,6 +97,14 @@ class Infeasible(ServiceError):
     title = "Hard demand cannot be met"
 
 
+class PinsInfeasible(ServiceError):
+    """The pins (``fixed``) alone exceed a supply, a demand or a capacity."""
+
+    status = 422
+    slug = "pins-infeasible"
+    title = "The pins cannot be routed"
+
+
 class Unbounded(ServiceError):
     """A cycle of unbounded arcs has negative cost: the cost can fall without limit."""
 

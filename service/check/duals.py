@@ -7,6 +7,7 @@ from typing import Any
 import numpy as np
 
 from service.check.exact import _dot, _first, _fit, _total
+from service.check.replan import _cut_pins
 from service.network.model import FORBIDDEN, Network
 
 #: Rows of a cost matrix checked at once: bounds the temporary to this x columns.
@@ -67,6 +68,15 @@ def _bounded_dual_term(net: Network, pi: np.ndarray) -> int:
     return _dot(arcs.capacity[b], np.maximum(0, -reduced))
 
 
+def _pinned_mask(net: Network) -> np.ndarray | None:
+    """Which of ``net.arcs`` are pinned; None without pins."""
+    if net.pins is None:
+        return None
+    mask = np.zeros(len(net.arcs), bool)
+    mask[np.searchsorted(net.arcs.id, net.pins.arc)] = True
+    return mask
+
+
 def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
                  shortfall: int) -> str | None:
     side = np.zeros(net.n_user, bool)
@@ -78,13 +88,18 @@ def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
     hard_in = side[off:] & ~net.soft
     demand = int(net.demand[hard_in].sum())
     capacity = int(net.supply[side[: net.n_sources]].sum())
-    if net.dense is not None:
+    pinned = _pinned_mask(net)
+    if net.dense is not None and pinned is None:
         outside, inside = ~side[: net.n_sources], side[off:]
         if inside.any() and (net.dense[np.ix_(outside, inside)] != FORBIDDEN).any():
             return "an unbounded matrix cell crosses the cut"
     else:
         arcs = net.arcs
         crossing = ~side[arcs.tail] & side[arcs.head]
+        if pinned is not None:
+            # a pin is an arc with lower = upper bound: it carries its pin either way
+            crossing &= ~pinned
+            capacity += _cut_pins(net, side)
         open_arc = _first(crossing & ~arcs.bounded)
         if open_arc is not None:
             return (f"unbounded arc {net.ids[arcs.tail[open_arc]]} -> "

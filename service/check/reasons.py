@@ -100,18 +100,25 @@ def _search(net: Network, start: np.ndarray, arc: np.ndarray | None,
     """Which user nodes the sources in ``start`` reach: over arcs that can carry flow when
     ``arc`` is None, else over the residual graph of the flow ``x`` on ``arc``."""
     n = net.n_user
-    if net.dense is not None:
+    if net.dense is not None and net.pins is None:
         return _search_matrix(net, start, arc, x)
     arcs = net.arcs
+    # a pin is an arc at both bounds: it can carry flow when its pin is above 0, and has
+    # no residual arc
+    pinned = np.zeros(len(arcs), bool)
+    if net.pins is not None:
+        pinned[np.searchsorted(arcs.id, net.pins.arc)] = True
     if arc is None:
         usable = ~arcs.bounded | (arcs.capacity > 0)
+        if net.pins is not None:
+            usable[pinned] = net.pins.flow > 0
         t, h = arcs.tail[usable], arcs.head[usable]
     else:
         assert x is not None
         flow = np.zeros(len(arcs), np.int64)
-        flow[arc] = x
-        ahead = ~arcs.bounded | (flow < arcs.capacity)
-        back = flow > 0
+        flow[np.searchsorted(arcs.id, arc)] = x
+        ahead = (~arcs.bounded | (flow < arcs.capacity)) & ~pinned
+        back = (flow > 0) & ~pinned
         t = np.concatenate([arcs.tail[ahead], arcs.head[back]])
         h = np.concatenate([arcs.head[ahead], arcs.tail[back]])
     seeds = np.flatnonzero(start)

@@ -46,6 +46,12 @@ from service.check.flows import _allocation, _amounts_differ
 from service.check.partition import check_partition
 from service.check.prices import PRICE_CHECKS, check_prices
 from service.check.reasons import _reasons_differ
+from service.check.replan import (
+    _changes_differ,
+    _extra_cost,
+    _pins_breach,
+    _replan_duals,
+)
 from service.network.model import Network
 
 __all__ = ["verify_answer"]
@@ -108,6 +114,10 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks,
     checks.add("capacity", None if over is None else
                f"arc {ids[tail[over]]} -> {ids[head[over]]} carries {x[over]} "
                f"over its capacity {cap[over]}", "every arc within its capacity")
+    flagged = answer["allocation"].present.get("fixed")
+    if net.pins is not None or (flagged is not None and flagged.any()):
+        checks.add("fixed", _pins_breach(net, arc, x, answer["allocation"]),
+                   "every pinned arc carries exactly its pin")
     net_out = _fit(_balances(net.n_user, tail, head, x))
     off = net.sink_offset
     sent = net_out[: net.n_sources]
@@ -143,6 +153,12 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks,
                    f"flow_value is {answer['flow_value']}, the allocation routes {routed}",
                    "flow_value as routed")
     primal = _dot(cost, x) + _dot(net.penalty[net.soft], unmet[net.soft])
+    if net.replans:
+        primal += _extra_cost(net, arc, x, sent)
+    if net.keep is not None or answer.get("changes") is not None:
+        checks.add("changes", _changes_differ(net, answer.get("changes"), arc, x,
+                                              lambda v: _grid_value(v, scale)),
+                   "kept, moved and their penalty as recomputed")
     sign = net.sign
     checks.add("objective",
                None if _grid_value(answer["objective"], scale) == sign * primal else
@@ -176,16 +192,25 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks,
 
     # Virtual arcs, then user arcs: every arc is checked, whatever its representation.
     v_tail, v_head, v_cost, v_cap, v_x = _virtual_arcs(net, unmet, sent, shortfall, S, T, P)
+    if net.load is not None:
+        v_cap[: net.n_sources] = 0       # the load tiers stand for the supply arcs
+        v_x[: net.n_sources] = 0
     v_reduced = v_cost - pi[v_tail] + pi[v_head]
     u_reduced = cost - pi[tail] + pi[head]
-    bad_dual_arc = _unbounded_negative(within, pi)
+    if net.replans:
+        extra_term, extra_slack, free_name = _replan_duals(within, pi, arc, x, sent, S)
+        bad_dual_arc = None if free_name is None else (free_name, 0)
+    else:
+        bad_dual_arc = _unbounded_negative(within, pi)
     checks.add("dual_feasibility", None if bad_dual_arc is None else
-               f"unbounded arc {bad_dual_arc[0]} has negative reduced cost "
-               f"{_show(bad_dual_arc[1], scale)}", "no unbounded arc has a negative reduced cost")
+               f"unbounded arc {bad_dual_arc[0]} has negative reduced cost" +
+               ("" if net.replans else f" {_show(bad_dual_arc[1], scale)}"),
+               "no unbounded arc has a negative reduced cost")
     bad_v = _first(((v_reduced > 0) & (v_x > 0)) | ((v_reduced < 0) & (v_x < v_cap)))
     # a row of flow 0 says nothing: only arcs that carry flow need a reduced cost <= 0
-    bad_u = _first((u_reduced > 0) & (x > 0))
-    saturated = _bounded_below_capacity(within, pi, arc, x)
+    bad_u = None if net.replans else _first((u_reduced > 0) & (x > 0))
+    saturated = None if net.replans else _bounded_below_capacity(within, pi, arc, x)
+    slack: str | None = None
     if bad_v is not None:
         labels = list(ids) + list(_VIRTUAL)
         slack = (f"arc {labels[v_tail[bad_v]]} -> {labels[v_head[bad_v]]} has reduced cost "
@@ -196,13 +221,19 @@ def _check_optimum(net: Network, answer: dict[str, Any], checks: _Checks,
                  f"{_show(int(u_reduced[bad_u]), scale)} and flow {x[bad_u]}")
     elif saturated is not None:
         slack = f"arc {saturated} has negative reduced cost and is below its capacity"
-    else:
-        slack = None
+    elif net.replans:
+        slack = extra_slack
     checks.add("complementary_slackness", slack,
-               "positive reduced cost: no flow; negative: at capacity")
+               "positive reduced cost: at the lower bound; negative: at capacity"
+               if net.replans else "positive reduced cost: no flow; negative: at capacity")
     demand = net.total_demand
-    dual = (demand * int(pi[S] - pi[T]) - _dot(v_cap, np.maximum(0, -v_reduced))
-            - _bounded_dual_term(within, pi))
+    if net.replans:
+        keep_constant = 0 if net.keep is None else net.keep.penalty * net.keep.total
+        dual = (demand * int(pi[S] - pi[T]) - _dot(v_cap, np.maximum(0, -v_reduced))
+                + extra_term + keep_constant)
+    else:
+        dual = (demand * int(pi[S] - pi[T]) - _dot(v_cap, np.maximum(0, -v_reduced))
+                - _bounded_dual_term(within, pi))
     reported_dual = cert["dual_objective"]
     if dual != primal:
         bad_dual = (f"dual objective {_show(sign * dual, scale)} differs from the cost "

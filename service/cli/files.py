@@ -70,11 +70,13 @@ def _delimiter(text: str) -> str:
 
 
 def _overrides(args: argparse.Namespace) -> dict[str, Any]:
+    from service.cli.replan import replan_overrides
+
     found: dict[str, Any] = {"objective": args.objective, "unmet_demand": args.unmet_demand,
                              "alternatives": getattr(args, "alternatives", None)}
     if getattr(args, "prices", False):
         found["prices"] = True
-    return {k: v for k, v in found.items() if v is not None}
+    return {**{k: v for k, v in found.items() if v is not None}, **replan_overrides(args)}
 
 
 def _in_form(args: argparse.Namespace, problem: dict[str, Any]) -> dict[str, Any]:

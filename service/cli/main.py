@@ -22,6 +22,7 @@ from service.cli.db import add_db
 from service.cli.demo import _cmd_demo
 from service.cli.files import _delimiter
 from service.cli.helps import MAIN_EPILOG, REPORT_EPILOG, SOLVE_EPILOG, VERIFY_EPILOG
+from service.cli.replan import add_replan_options
 from service.cli.report import _cmd_report
 from service.cli.retries import DEFAULT_RETRIES
 from service.cli.serve import _cmd_serve
@@ -101,6 +102,7 @@ def _add_problem_options(cmd: argparse.ArgumentParser) -> None:
                        help="also ask for the K next-best plans (1 to 50), each certified; "
                        "the table lists them with what each costs more and how it differs; "
                        "replaces the file's field")
+    add_replan_options(cmd)
     table = cmd.add_argument_group("CSV cost tables")
     table.add_argument("--supply-column", default="supply", metavar="NAME",
                        help="header of the supply column ('' for none; default %(default)s)")

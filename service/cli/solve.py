@@ -58,8 +58,9 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
     lines = [f"optimal allocation ({answer.get('shape', '?')}, solver "
              f"{answer.get('solver', '?')})", ""]
     rows = [("from", "to", "flow", "score" if maximize else "cost")]
-    rows += [(str(r["from"]), str(r["to"]), _num(r["flow"]), _num(r.get("cost", "")))
-             for r in answer["allocation"]]
+    rows += [(str(r["from"]), str(r["to"]),
+              _num(r["flow"]) + (" pinned" if r.get("fixed") else ""),
+              _num(r.get("cost", ""))) for r in answer["allocation"]]
     flow = sum(r["flow"] for r in answer["allocation"])
     total = sum(r.get("cost", 0) for r in answer["allocation"])
     rows.append(("total", "", _num(flow), _num(round(total, 6))))
@@ -89,6 +90,11 @@ def _answer_table(problem: dict[str, Any] | None, answer: dict[str, Any],
     lines.append("")
     what = ("greatest total score less penalties" if maximize
             else "least total cost plus penalties")
+    changes = answer.get("changes")
+    if isinstance(changes, dict):
+        lines.append(f"against the previous plan: {_num(changes.get('kept'))} units kept, "
+                     f"{_num(changes.get('moved'))} moved, penalty "
+                     f"{_num(changes.get('penalty'))} (in the objective)")
     lines.append(f"objective: {_num(answer['objective'])} ({what})")
     bottleneck = answer.get("certificate", {}).get("bottleneck")
     if bottleneck is not None:

@@ -17,6 +17,7 @@ import numpy as np
 from schemas.problem import ARC_ENDS, ID_TABLES, declared_ids
 from service.errors import InvalidProblem, TooLarge
 from service.network.model import COST_DECIMALS, FORBIDDEN, Arcs, Network
+from service.network.replan import replan_numbers, with_replan
 from service.settings import Settings
 
 
@@ -45,6 +46,11 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
 
     penalty_present = sinks.present["penalty"]
     penalty = sinks.columns["penalty"]
+    # load costs and the change penalty share the grid of the costs and penalties
+    extra = replan_numbers(data)
+    if len(extra):
+        penalty_present = np.concatenate([penalty_present, np.ones(len(extra), bool)])
+        penalty = np.concatenate([penalty, extra])
     sign = -1 if data["objective"] == "max" else 1
     dense = arc_list = None
     if "costs" in data:
@@ -73,7 +79,8 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
                         cost=_min_form(table.columns["cost"], scale, sign),
                         capacity=np.where(bounded, table.columns["capacity"], 0).astype(np.int64),
                         bounded=bounded)
-    return Network(
+    penalty, penalty_present = penalty[:n_snk], penalty_present[:n_snk]
+    net = Network(
         ids=ids, n_sources=n_src, n_nodes=n_mid, n_sinks=n_snk,
         supply=sources.columns["supply"], demand=sinks.columns["demand"],
         penalty=np.where(penalty_present, _scaled(penalty, scale), 0),
@@ -81,6 +88,7 @@ def build_network(data: dict[str, Any], settings: Settings) -> Network:
         maximize=sign < 0, reject_unmet=data["unmet_demand"] == "reject", cost_scale=scale,
         data=_carried(groups), bottleneck=data["objective"] == "bottleneck",
     )
+    return with_replan(net, data, lambda values: _scaled(values, scale))
 
 
 def _carried(groups: list) -> dict[str, Any]:

@@ -55,6 +55,40 @@ class Flow:
 
 
 @dataclass(frozen=True)
+class Pins:
+    """``fixed``: arcs whose flow is exactly ``flow`` (lower = upper bound), by arc id
+    ascending; ``entry`` is each pin's position in the request's ``fixed``."""
+
+    arc: np.ndarray
+    flow: np.ndarray
+    entry: np.ndarray
+
+
+@dataclass(frozen=True)
+class Keep:
+    """``previous``: units of the previous plan on arcs that still exist (arc ids
+    ascending), all previous units (those on vanished pairs too), and the scaled penalty
+    of each unit not kept on its arc."""
+
+    arc: np.ndarray
+    amount: np.ndarray
+    total: int
+    penalty: int
+
+
+@dataclass(frozen=True)
+class Load:
+    """``load_costs`` as tiers of the supply arcs: tier ``k`` lets ``source[k]`` send
+    ``capacity[k]`` more units at ``cost[k]`` each (scaled; a cost under max too). A
+    source's tiers are consecutive, in order: the first is its supply arc, the others
+    follow; sources without load costs have one tier of cost 0 and their supply."""
+
+    source: np.ndarray
+    cost: np.ndarray
+    capacity: np.ndarray
+
+
+@dataclass(frozen=True)
 class Network:
     """User nodes and arcs with exact integer data (see module docstring)."""
 
@@ -75,6 +109,15 @@ class Network:
     bottleneck: bool = False
     #: the ``data`` objects of the request by id, in numbering order; never read by a solver
     data: dict[str, Any] = field(default_factory=dict)
+    pins: Pins | None = None
+    keep: Keep | None = None
+    load: Load | None = None
+
+    @property
+    def replans(self) -> bool:
+        """Pins, a previous plan or load costs: the extended network has bounds and
+        parallel arcs (README, "The certificate")."""
+        return self.pins is not None or self.keep is not None or self.load is not None
 
     @property
     def sink_offset(self) -> int:
@@ -127,7 +170,9 @@ class Network:
         """
         finite = 0 if self.arc_list is None else int(
             self.arc_list.capacity[self.arc_list.bounded].sum())
-        return self.total_demand + finite + 1
+        # pinned flow may go round a cycle it closes
+        pinned = 0 if self.pins is None else int(self.pins.flow.sum())
+        return self.total_demand + finite + pinned + 1
 
     def arc_exists(self, arc: np.ndarray) -> np.ndarray:
         """Mask of the ids that name a user arc."""

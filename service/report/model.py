@@ -43,6 +43,8 @@ class _Model:
     pi: np.ndarray = field(init=False)
     #: (force_delta, forbid_delta) per arc, nan for null; only when the verifier proved them
     prices: tuple[np.ndarray, np.ndarray] | None = None
+    pinned: np.ndarray = field(init=False)    # per arc: fixed by a pin
+    body: Mapping[str, Any] = field(default_factory=dict)   # the request, as records
 
     @property
     def places(self) -> list[str]:
@@ -118,6 +120,10 @@ def _model(body: Mapping[str, Any], verdict: Mapping[str, Any]) -> _Model:
         m.rc = np.zeros(0)
         m.violation = np.zeros(0, bool)
     m.prices = _proven_prices(m, answer.get("prices"))
+    from service.report.replan import mark_replan  # it reads the model: imported here
+
+    m.body = body
+    mark_replan(m, body)
     return m
 
 

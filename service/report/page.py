@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 
 from service import __version__
+from service.report import replan
 from service.report.model import _Model, _model
 from service.report.picture import _picture, _too_large_svg
 from service.report.proof import _checks, _failed, _proof_items, _verdict_sentence
@@ -111,6 +112,7 @@ def _problem_facts(m: _Model) -> list[tuple[str, str]]:
          else "min: least total cost plus penalties"),
         ("unmet demand", "reject if hard demand cannot be met" if m.unmet_policy == "reject"
          else "meet as much hard demand as possible, then least cost"),
+        *replan.problem_facts(m.body),
     ]
 
 
@@ -134,6 +136,7 @@ def _answer_facts(m: _Model) -> list[tuple[str, str]]:
         theta = bottleneck.get("threshold")
         items.append(("longest trip (bottleneck threshold)" + said,
                       "none: no pair is needed" if theta is None else _esc(_num(theta))))
+    items += replan.answer_facts(a, said)
     if a.get("shape") or a.get("solver"):
         items.append(("solved as", _esc(f"{a.get('shape', '?')} by {a.get('solver', '?')}")))
     return items
@@ -227,6 +230,7 @@ def _allocation_rows(m: _Model) -> list[list[str]]:
         rows.append([_esc(places[int(m.tail[k])]), _esc(places[int(m.head[k])]),
                      str(int(m.flow[k])), _esc(_num(float(m.flow[k] * m.cost[k]))),
                      _esc(_num(float(m.rc[k])))
+                     + (" (pinned)" if m.pinned[k] else "")
                      + (' <span class="fail">breaks slackness</span>' if m.violation[k]
                         else "")])
     return rows
@@ -301,6 +305,11 @@ def render_html(body: Mapping[str, Any], verdict: Mapping[str, Any],
     parts.append(_table(["source", "supply", "unused"], spare_rows, {1, 2})
                  if spare_rows else "<p>None: every source sends its whole supply.</p>")
     parts.append("</div></div>")
+    pins = replan.pins_rows(m, m.body)
+    if pins:
+        parts.append("<h2>Pins</h2><p>Each pinned pair carries exactly its pin: an arc at "
+                     "both bounds, so any reduced cost is consistent with it.</p>"
+                     + _table(["from", "to", "pinned", "carried"], pins, {2, 3}))
     parts.append("<h2>Reduced costs at a glance</h2>" + _table(
         ["", "value"], [[_esc(k), _esc(v)] for k, v in _rc_summary(m)], {1}))
     parts.append(_potentials(m))

@@ -15,6 +15,7 @@ from service.errors import OutOfRange
 from service.network.model import Flow, Network
 from service.solve.certificate import Certificate
 from service.solve.dispatch import Solution
+from service.solve.feasibility import cut_capacity
 from service.solve.reasons import PENALTY, waiting_reasons
 
 #: Fractional numbers of an answer stay below this magnitude (see ``_values``).
@@ -107,21 +108,20 @@ def build_answer(net: Network, solution: Solution, cert: Certificate, *,
     short = np.zeros(net.n_sinks, np.int64)
     short[ext.soft_sinks] = xv[ext.blocks["soft"]]
     short[ext.hard_sinks] = xv[ext.blocks["hard"]]
-    idle = net.supply - xv[ext.blocks["supply"]]
+    sent = xv[ext.blocks["supply"]].copy()
+    if net.load is not None:
+        np.add.at(sent, ext.head[ext.blocks["load"]], xv[ext.blocks["load"]])
+    idle = net.supply - sent
     sign = net.sign
     side = solution.shortfall.sink_side
     cut_sinks = np.flatnonzero(side[off:] & ~net.soft)
-    cut_capacity = int(net.supply[side[: net.n_sources]].sum())
-    if side.any() and net.arc_list is not None:
-        arcs = net.arc_list
-        cut_capacity += int(arcs.capacity[~side[arcs.tail] & side[arcs.head]].sum())
     potentials = _values(net, pi)
     answer: dict[str, Any] = {
         "status": "optimal",
         "shape": solution.shape,
         "solver": solution.solver,
         "objective": _value(net, sign * cert.primal),
-        "flow_value": int(xv[ext.blocks["supply"]].sum()),
+        "flow_value": int(sent.sum()),
         "allocation": allocation,
         "unmet": _unmet_rows(net, flow, short, idle, pi, within),
         "unused": [{"id": ids[i], "amount": int(idle[i])}
@@ -137,11 +137,21 @@ def build_answer(net: Network, solution: Solution, cert: Certificate, *,
                 "sink_side": [ids[i] for i in np.flatnonzero(side).tolist()],
                 "sinks": [ids[off + i] for i in cut_sinks.tolist()],
                 "demand": int(net.demand[cut_sinks].sum()),
-                "capacity": cut_capacity,
+                "capacity": cut_capacity(net, side),
             },
             "dual_objective": _value(net, sign * cert.dual),
         },
     }
     if net.data:
         answer["data"] = net.data
+    if net.pins is not None:
+        pinned = np.isin(arc, net.pins.arc)
+        for row, fixed in zip(allocation, pinned.tolist(), strict=True):
+            if fixed:
+                row["fixed"] = True
+    if net.keep is not None:
+        kept = int(xv[ext.blocks["keep"]].sum())
+        moved = net.keep.total - kept
+        answer["changes"] = {"kept": kept, "moved": moved,
+                             "penalty": _value(net, net.keep.penalty * moved)}
     return answer

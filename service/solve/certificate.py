@@ -25,7 +25,7 @@ import numpy as np
 from service.errors import CertificateFailure, OutOfRange
 from service.network.model import Network
 from service.solve.dispatch import Solution
-from service.solve.extended import Extended, extend, virtual_flows
+from service.solve.extended import Extended, extend, user_bounds, virtual_flows
 from service.solve.paths import DenseBlock, bellman_ford
 from service.solve.potentials import exact_potentials, forest_candidate
 
@@ -95,14 +95,25 @@ def certify(net: Network, solution: Solution) -> Certificate:
     xv = virtual_flows(net, ext, flow)
     used_tail, used_head = net.endpoints(flow.arc)
     used_cost = net.arc_cost(flow.arc)
-    parts = [(ext.tail[xv < ext.capacity], ext.head[xv < ext.capacity],
-              ext.cost[xv < ext.capacity]),
-             (ext.head[xv > 0], ext.tail[xv > 0], -ext.cost[xv > 0]),
-             (used_head, used_tail, -used_cost)]
+    # the plain part of each used arc: its flow less what its keep arc carries
+    plain = _plain_flow(net, ext, xv, flow.arc, flow.amount)
+    room, above = xv < ext.capacity, xv > ext.lower
+    parts = [(ext.tail[room], ext.head[room], ext.cost[room]),
+             (ext.head[above], ext.tail[above], -ext.cost[above])]
     block = None
-    if net.dense is not None:
+    if net.replans:
+        arcs = net.arcs
+        x = np.zeros(len(arcs), np.int64)
+        x[np.searchsorted(arcs.id, flow.arc)] = plain
+        lower, upper, bounded = user_bounds(net, arcs.id)
+        fwd, back = ~bounded | (x < upper), x > lower
+        parts.append((arcs.tail[fwd], arcs.head[fwd], arcs.cost[fwd]))
+        parts.append((arcs.head[back], arcs.tail[back], -arcs.cost[back]))
+    elif net.dense is not None:
+        parts.append((used_head, used_tail, -used_cost))
         block = DenseBlock(0, net.sink_offset, net.dense)
     else:
+        parts.append((used_head, used_tail, -used_cost))
         arcs = net.arcs
         x = np.zeros(len(arcs), np.int64)
         x[flow.arc] = flow.amount           # arc ids of a list are positions
@@ -119,18 +130,39 @@ def certify(net: Network, solution: Solution) -> Certificate:
             raise CertificateFailure("the residual graph has a negative cycle: the engine's "
                                      "flow is not optimal")
         pi = -paths.dist
-    primal = exact_dot(used_cost, flow.amount) + exact_dot(ext.cost, xv)
-    penalty = exact_dot(ext.capacity, np.maximum(0, -(ext.cost - pi[ext.tail] + pi[ext.head])))
-    if net.arc_list is not None:
+    primal = (exact_dot(used_cost, plain) + exact_dot(ext.cost, xv)) + ext.keep_constant
+    reduced = ext.cost - pi[ext.tail] + pi[ext.head]
+    penalty = (exact_dot(ext.capacity, np.maximum(0, -reduced))
+               - exact_dot(ext.lower, np.maximum(0, reduced)))
+    if net.replans:
+        arcs = net.arcs
+        lower, upper, bounded = user_bounds(net, arcs.id)
+        reduced = arcs.cost[bounded] - pi[arcs.tail[bounded]] + pi[arcs.head[bounded]]
+        penalty += (exact_dot(upper[bounded], np.maximum(0, -reduced))
+                    - exact_dot(lower[bounded], np.maximum(0, reduced)))
+    elif net.arc_list is not None:
         arcs = net.arc_list
         b = arcs.bounded
         reduced = arcs.cost[b] - pi[arcs.tail[b]] + pi[arcs.head[b]]
         penalty += exact_dot(arcs.capacity[b], np.maximum(0, -reduced))
-    dual = net.total_demand * int(pi[ext.S] - pi[ext.T]) - penalty
+    dual = net.total_demand * int(pi[ext.S] - pi[ext.T]) - penalty + ext.keep_constant
     if dual != primal:
         raise CertificateFailure(f"dual objective {dual} differs from the cost {primal}")
     return Certificate(ext=ext, virtual_flow=xv, potential=pi, primal=primal, dual=dual,
                        method=method)
+
+
+def _plain_flow(net: Network, ext: Extended, xv: np.ndarray, arc: np.ndarray,
+                amount: np.ndarray) -> np.ndarray:
+    """Flow of the plain part of used arcs ``arc``: ``amount`` less their keep arcs'."""
+    if net.keep is None or not len(ext.keep_arc):
+        return amount
+    kept = np.zeros(len(arc), np.int64)
+    at = np.minimum(np.searchsorted(arc, ext.keep_arc), max(len(arc) - 1, 0))
+    if len(arc):
+        hit = arc[at] == ext.keep_arc
+        kept[at[hit]] = xv[ext.blocks["keep"]][hit]
+    return amount - kept
 
 
 def _from_candidate(net: Network, ext: Extended, solution: Solution, xv: np.ndarray,
@@ -152,13 +184,18 @@ def _from_candidate(net: Network, ext: Extended, solution: Solution, xv: np.ndar
 def _forest(net: Network, ext: Extended, solution: Solution, xv: np.ndarray) -> np.ndarray:
     """The free-arc forest candidate over user and virtual arcs (arc lists only)."""
     arcs = net.arcs
+    flow = solution.flow
     x = np.zeros(len(arcs), np.int64)
-    x[solution.flow.arc] = solution.flow.amount
-    user_free = (x > 0) & (~arcs.bounded | (x < arcs.capacity))
+    x[np.searchsorted(arcs.id, flow.arc)] = _plain_flow(net, ext, xv, flow.arc, flow.amount)
+    if net.replans:
+        lower, upper, bounded = user_bounds(net, arcs.id)
+        user_free = (x > lower) & (~bounded | (x < upper))
+    else:
+        user_free = (x > 0) & (~arcs.bounded | (x < arcs.capacity))
     return forest_candidate(ext.n_nodes, np.concatenate([arcs.tail, ext.tail]),
                             np.concatenate([arcs.head, ext.head]),
                             np.concatenate([arcs.cost, ext.cost]),
-                            np.concatenate([user_free, (xv > 0) & (xv < ext.capacity)]))
+                            np.concatenate([user_free, (xv > ext.lower) & (xv < ext.capacity)]))
 
 
 def _block_holds(block: DenseBlock, pi: np.ndarray) -> bool:

@@ -40,6 +40,7 @@ from service.solve.feasibility import (
     shortfall_of_matching,
 )
 from service.solve.paths import order_by
+from service.solve.pinned import check_pin_capacity, pinned_shortfall
 
 #: A cost matrix with at least this share of allowed cells goes to the dense engine.
 DENSE_SHARE = 0.5
@@ -89,6 +90,13 @@ def solve(net: Network) -> Solution:
     """Solve ``net``: raises Unbounded, or Infeasible when unmet hard demand is rejected."""
     check_bounded(net)
     shape = shape_of(net)
+    if net.replans:
+        check_pin_capacity(net)
+        # bounds and parallel arcs: only the min-cost-flow engine takes them
+        solved = _two_stages(net, min_cost_flow.solve)
+        assert solved is not False
+        shortfall, run = solved
+        return Solution(shape, min_cost_flow.NAME, run.flow, shortfall, free_arcs=True)
     if shape == "assignment":
         matched = _assignment(net)
         if matched is not None:
@@ -146,6 +154,8 @@ def _stage_one(net: Network) -> Shortfall:
     O(n^2 sqrt(m)) (Cheriyan & Maheshwari 1989) and, like any compiled call, must not
     outlast the time limit."""
     n = net.n_user + 2
+    if net.pins is not None:
+        return pinned_shortfall(net)
     out = isolation.run(_least_shortfall_arrays, net,
                         work=n * n * max(1, math.isqrt(len(net.arcs) + n)))
     if "out_of_range" in out:

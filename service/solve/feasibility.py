@@ -19,8 +19,8 @@ from service.errors import Infeasible, OutOfRange, Unbounded
 from service.network.model import Network
 from service.solve.paths import bellman_ford, cycle_through_pred
 
-__all__ = ["Shortfall", "check_bounded", "least_shortfall", "shortfall_of_matching",
-           "witness"]
+__all__ = ["Shortfall", "check_bounded", "cut_capacity", "least_shortfall",
+           "shortfall_of_matching", "witness"]
 
 
 @dataclass(frozen=True)
@@ -42,6 +42,8 @@ def check_bounded(net: Network) -> None:
     if arcs is None:
         return                      # a matrix joins sources to sinks only: no cycles
     free = ~arcs.bounded
+    if net.pins is not None:
+        free[net.pins.arc] = False          # a pinned arc's flow is fixed
     if not (free & (arcs.cost < 0)).any():
         return
     tail, head, cost = arcs.tail[free], arcs.head[free], arcs.cost[free]
@@ -114,14 +116,17 @@ def witness(net: Network, shortfall: Shortfall) -> dict:
     sinks = np.flatnonzero(side[off:] & ~net.soft)
     sources = np.flatnonzero(side[: net.n_sources])
     arcs = net.arcs
-    crossing = np.flatnonzero(~side[arcs.tail] & side[arcs.head])
+    crossing = ~side[arcs.tail] & side[arcs.head]
+    if net.pins is not None:
+        crossing[np.searchsorted(arcs.id, net.pins.arc)] = False
+    crossing = np.flatnonzero(crossing)
     return {
         "sinks": [net.ids[off + int(i)] for i in sinks],
         "sources": [net.ids[int(i)] for i in sources],
         "arcs": [{"from": net.ids[int(arcs.tail[a])], "to": net.ids[int(arcs.head[a])],
                   "capacity": int(arcs.capacity[a])} for a in crossing],
         "demand": int(net.demand[sinks].sum()),
-        "capacity": int(net.supply[sources].sum() + arcs.capacity[crossing].sum()),
+        "capacity": cut_capacity(net, side),
         "shortfall": shortfall.amount,
     }
 
@@ -139,3 +144,22 @@ def reject_if_short(net: Network, shortfall: Shortfall) -> None:
 
 def _units(n: int) -> str:
     return f"{n} unit" if n == 1 else f"{n} units"
+
+
+def cut_capacity(net: Network, side: np.ndarray) -> int:
+    """What arcs into the sink side can carry: its sources' supply, the capacity of arcs
+    into it, pinned flow into it, less pinned flow out of it (README, "The certificate")."""
+    if not side.any():
+        return 0
+    total = int(net.supply[side[: net.n_sources]].sum())
+    if net.arc_list is not None:
+        arcs = net.arc_list
+        crossing = ~side[arcs.tail] & side[arcs.head]
+        if net.pins is not None:
+            crossing[net.pins.arc] = False      # arc ids of a list are positions
+        total += int(arcs.capacity[crossing].sum())
+    if net.pins is not None:
+        tail, head = net.endpoints(net.pins.arc)
+        total += int(net.pins.flow[~side[tail] & side[head]].sum())
+        total -= int(net.pins.flow[side[tail] & ~side[head]].sum())
+    return total

@@ -56,6 +56,17 @@ def solve_body(body: Any, settings: Settings,
     with request_scope(), deadline(time_limit(body, settings), "solving this problem"):
         data = clock.run("validate", _load, _problem_schema, body)
         net = clock.run("normalise", build_network, data, settings)
+        if net.replans:
+            # prices and alternatives are proven on the network without bounds or
+            # parallel arcs
+            asked = [key for key in ("prices", "alternatives") if data.get(key)]
+            if net.bottleneck:
+                asked.append("objective")
+            if asked:
+                raise InvalidProblem([{"pointer": f"/{key}", "detail":
+                                       f"{key} {data.get(key)!r} cannot be asked together "
+                                       "with fixed, previous or load_costs (yet)"}
+                                      for key in asked])
         if net.bottleneck:
             if data.get("prices"):
                 raise InvalidProblem([{"pointer": "/prices", "detail": "override prices are "

@@ -15,6 +15,11 @@ The rule (README, "Why a sink waits"), for a sink ``t`` left short:
    residual graph costs at least that much, since every other residual arc has a reduced
    cost >= 0).
 
+A pinned arc counts as able to carry flow when its pin is above 0, and has no residual arc
+(it sits at both of its bounds). Keep arcs and load tiers do not change what is reached:
+parallel parts of an arc have room exactly when the arc has, and tiers of a supply arc
+exactly when the source has spare supply.
+
 Two breadth-first searches in all, each linear in the arcs (a matrix is read a block of
 rows at a time, each row once).
 """
@@ -59,18 +64,24 @@ def waiting_reasons(net: Network, flow: Flow, short: np.ndarray, spare: np.ndarr
 def _reached(net: Network, seeds: np.ndarray, flow: Flow | None) -> np.ndarray:
     """Mask of user nodes reachable from the sources in ``seeds``: over every arc that can
     carry flow when ``flow`` is None, else over the residual graph of ``flow``."""
-    if net.dense is not None:
+    if net.dense is not None and net.pins is None:
         return _reached_dense(net, seeds, flow)
     arcs = net.arcs
     n = net.n_user
+    # a pinned arc carries its pin and nothing else: no residual arc either way
+    pinned = np.zeros(len(arcs), bool)
+    if net.pins is not None:
+        pinned[np.searchsorted(arcs.id, net.pins.arc)] = True
     if flow is None:
         keep = ~arcs.bounded | (arcs.capacity > 0)
+        if net.pins is not None:
+            keep[pinned] = net.pins.flow > 0
         tail, head = arcs.tail[keep], arcs.head[keep]
     else:
         x = np.zeros(len(arcs), np.int64)
-        x[flow.arc] = flow.amount
-        room = ~arcs.bounded | (x < arcs.capacity)
-        used = x > 0
+        x[np.searchsorted(arcs.id, flow.arc)] = flow.amount
+        room = (~arcs.bounded | (x < arcs.capacity)) & ~pinned
+        used = (x > 0) & ~pinned
         tail = np.concatenate([arcs.tail[room], arcs.head[used]])
         head = np.concatenate([arcs.head[room], arcs.tail[used]])
     roots = np.flatnonzero(seeds)

@@ -261,7 +261,11 @@ def _number_checks() -> Iterator[tuple[str, dict[str, Any], str, int, int | str 
                 row_name = f.row_schema.__name__
                 row = _properties(row_name)
                 for row_key, kind, _ in f.specs:
-                    if kind not in ("id", "flag", "object"):   # no number: no bound
+                    if kind == "field":                   # a list of numbers: its items
+                        yield (f"{row_name.removesuffix('Schema')}.{row_key}[]",
+                               _deref(row.get(row_key, {})).get("items", {}), "number",
+                               *f.bounds[row_key])
+                    elif kind not in ("id", "flag", "object"):   # no number: no bound
                         yield (f"{row_name.removesuffix('Schema')}.{row_key}",
                                _deref(row.get(row_key, {})), kind, *f.bounds[row_key])
                 continue

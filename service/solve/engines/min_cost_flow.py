@@ -9,7 +9,7 @@ from service.errors import OutOfRange
 from service.network.model import Flow, Network
 from service.solve import isolation
 from service.solve.engines import Run, log2_ceil
-from service.solve.extended import extend
+from service.solve.extended import extend, user_bounds
 
 __all__ = ["NAME", "solve"]
 
@@ -44,30 +44,56 @@ def solve(net: Network, hard_shortfall: int) -> Run | None:
     """
     arcs = net.arcs
     ext = extend(net, hard_shortfall)
-    capacity = np.where(arcs.bounded, arcs.capacity, net.unbounded_capacity())
-    tail = np.concatenate([arcs.tail, ext.tail])
-    cost = np.concatenate([arcs.cost, ext.cost])
+    big = net.unbounded_capacity()
     supplies = np.zeros(ext.n_nodes, np.int64)
     supplies[ext.S] = net.total_demand
     supplies[ext.T] = -net.total_demand
+    if net.replans:
+        # bounds l <= x <= u become 0 <= x - l <= u - l, with l sent ahead of the solve
+        lower, upper, bounded = user_bounds(net, arcs.id)
+        capacity = np.where(bounded, upper - lower, big)
+        ext_capacity = ext.capacity - ext.lower
+        for tails, heads, sent in ((arcs.tail, arcs.head, lower),
+                                   (ext.tail, ext.head, ext.lower)):
+            np.subtract.at(supplies, tails, sent)
+            np.add.at(supplies, heads, sent)
+    else:
+        lower = np.zeros(len(arcs), np.int64)
+        capacity = np.where(arcs.bounded, arcs.capacity, big)
+        ext_capacity = ext.capacity
+    tail = np.concatenate([arcs.tail, ext.tail])
+    cost = np.concatenate([arcs.cost, ext.cost])
     spread = int(np.abs(cost).max(initial=0)) + 1
     work = ext.n_nodes ** 2 * len(tail) * log2_ceil(ext.n_nodes * spread)
+    keep = ext.blocks["keep"]
     out = isolation.run(_call, tail, np.concatenate([arcs.head, ext.head]),
-                        np.concatenate([capacity, ext.capacity]), cost, supplies, len(arcs),
-                        work=work)
+                        np.concatenate([capacity, ext_capacity]), cost, supplies, len(arcs),
+                        len(arcs) + keep.start, len(arcs) + keep.stop, work=work)
     status = _Status(int(out["status"]))
     if status == _Status.INFEASIBLE:
         return None
     if status != _Status.OPTIMAL:
         raise OutOfRange(f"the min-cost-flow stage could not run ({status.name}); the costs or "
                          "capacities are too large for exact 64-bit arithmetic")
-    used = out["used"]
-    return Run(Flow(arc=arcs.id[used], amount=out["amount"]))
+    if not net.replans:
+        used = out["used"]
+        return Run(Flow(arc=arcs.id[used], amount=out["amount"]))
+    # user arc flow = its plain part + its keep arc, with the lower bounds put back
+    total = lower.copy()
+    total[out["used"]] += out["amount"]
+    keep_flow = out["keep"] + ext.lower[keep]
+    if len(keep_flow):
+        position = np.searchsorted(arcs.id, ext.keep_arc)
+        np.add.at(total, position, keep_flow)
+    used = np.flatnonzero(total)
+    return Run(Flow(arc=arcs.id[used], amount=total[used]))
 
 
 def _call(tail: np.ndarray, head: np.ndarray, capacity: np.ndarray, cost: np.ndarray,
-          supplies: np.ndarray, n_user: int) -> isolation.Arrays:
-    """The bare library call: status, and the user arcs with flow and their amounts."""
+          supplies: np.ndarray, n_user: int, keep_start: int, keep_stop: int
+          ) -> isolation.Arrays:
+    """The bare library call: status, the user arcs with flow and their amounts, and the
+    flows of the keep arcs (positions ``keep_start:keep_stop``)."""
     solver = min_cost_flow.SimpleMinCostFlow()
     handles = solver.add_arcs_with_capacity_and_unit_cost(
         tail.astype(np.int32), head.astype(np.int32), capacity, cost)
@@ -77,4 +103,6 @@ def _call(tail: np.ndarray, head: np.ndarray, capacity: np.ndarray, cost: np.nda
         return {"status": np.array(int(status))}
     flows = np.asarray(solver.flows(handles[:n_user]), dtype=np.int64)
     used = np.flatnonzero(flows)
-    return {"status": np.array(int(status)), "used": used, "amount": flows[used]}
+    keep = np.asarray(solver.flows(handles[keep_start:keep_stop]), dtype=np.int64)
+    return {"status": np.array(int(status)), "used": used, "amount": flows[used],
+            "keep": keep}
