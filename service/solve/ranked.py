@@ -111,6 +111,7 @@ class _Residual:
     forward: np.ndarray       # per CSR entry: True for the arc itself, False for its reverse
     reduced: np.ndarray       # per extended arc: c^pi
     slots: dict[int, np.ndarray] = field(default_factory=dict)
+    upto: int = 0             # the first ``upto`` branch arcs are taken out, no other
 
 
 def rank(net: Network, cert: Certificate, user_flow: Flow, k: int) -> Ranked:
@@ -223,9 +224,7 @@ class _Search:
         plan = self.out.plans[j]
         res = plan.residual
         assert res is not None and plan.branch is not None
-        res.graph.data[:] = res.base
-        for a in plan.branch[: i + 1].tolist():
-            self.mask(res, a)
+        self.take_out(res, plan.branch, i + 1)
         self.child(j, i, int(plan.branch[i]), side, res)
 
     def child(self, j: int, i: int, a: int, side: str, res: _Residual) -> None:
@@ -265,10 +264,8 @@ class _Search:
         assert parent.branch is not None
         res = parent.residual
         assert res is not None
-        res.graph.data[:] = res.base
+        self.take_out(res, parent.branch, i + 1)
         prefix = parent.branch[: i + 1].tolist()
-        for a in prefix:
-            self.mask(res, a)
         a = prefix[-1]
         u, v = int(o.tail[a]), int(o.head[a])
         source, target = (u, v) if side == "below" else (v, u)
@@ -351,9 +348,14 @@ class _Search:
         return res
 
     @staticmethod
-    def mask(res: _Residual, a: int) -> None:
-        """Take arc ``a`` out of the residual graph (both directions)."""
-        res.graph.data[res.slots.get(a, np.zeros(0, np.int64))] = np.inf
+    def take_out(res: _Residual, branch: np.ndarray, count: int) -> None:
+        """Leave exactly the first ``count`` branch arcs out of the graph, changing only
+        the entries of the arcs between the old count and the new."""
+        data, empty = res.graph.data, np.zeros(0, np.int64)
+        for a in branch[min(count, res.upto): max(count, res.upto)].tolist():
+            at = res.slots.get(a, empty)
+            data[at] = np.inf if count > res.upto else res.base[at]
+        res.upto = count
 
     # -- which arcs to branch on ------------------------------------------------------------
 
