@@ -120,7 +120,9 @@ def solve() -> Response:
         answer = _solve_counted(body, settings)
         # The answer passed the independent check inside solve_body; only now is it
         # recorded, and the response is the bytes the store kept for the key.
-        return Response(recorder.finish(pending, answer), content_type="application/json")
+        response = Response(recorder.finish(pending, answer), content_type="application/json")
+        response.call_on_close(recorder.prune_due)     # retention, once the answer is out
+        return response
 
     return _answered(work)
 

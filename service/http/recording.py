@@ -16,7 +16,9 @@ way (README, "Decision records", shows a client recomputing both).
 from __future__ import annotations
 
 import hashlib
+import logging
 import threading
+import time
 from dataclasses import dataclass
 from typing import Any
 
@@ -32,9 +34,13 @@ from service.records.model import Decision, NewDecision
 from service.records.signing import KeyFileError, Signer, load_or_create_key
 from service.records.store import DecisionStore, make_engine
 
-__all__ = ["Pending", "Recorder"]
+__all__ = ["PRUNE_EVERY_S", "Pending", "Recorder"]
+
+log = logging.getLogger(__name__)
 
 SERVICE_VERSION = __version__
+#: Seconds between two retention passes of one process (``CERTIMATCH_RETENTION_DAYS``).
+PRUNE_EVERY_S = 3600.0
 
 
 @dataclass(frozen=True)
@@ -62,8 +68,10 @@ class Recorder:
         self._store: DecisionStore | None = None
         self._signer: Signer | None = None
         self._lock = threading.Lock()
+        self._pruned_at: float | None = None
         if self.recording:
             self.open()
+            self.prune_due()
 
     @property
     def recording(self) -> bool:
@@ -92,6 +100,29 @@ class Recorder:
             return self.open()
         except (SchemaNotCurrent, KeyFileError) as e:
             raise StoreUnavailable(str(e)) from None
+
+    def prune_due(self) -> int:
+        """Retention: remove the problem and answer of records older than
+        ``RETENTION_DAYS`` (their decision and leaf stay), at most once every
+        :data:`PRUNE_EVERY_S` per process; at start-up and after answers have been sent.
+        The number of records pruned; a store that fails is logged, never raised (the
+        decisions were recorded; the next pass catches up)."""
+        days = self.settings.retention_days
+        now = time.monotonic()
+        if (not days or not self.recording
+                or (self._pruned_at is not None and now - self._pruned_at < PRUNE_EVERY_S)):
+            return 0
+        self._pruned_at = now
+        try:
+            store, _ = self.open()
+            pruned = store.prune(days)
+        except (StoreUnavailable, SchemaNotCurrent) as e:
+            log.warning("retention pass failed: %s", e)
+            return 0
+        if pruned:
+            log.info("retention removed the problem and answer of %d decisions older than "
+                     "%d days", pruned, days)
+        return pruned
 
     def close(self) -> None:
         if self._store is not None:

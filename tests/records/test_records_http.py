@@ -383,3 +383,40 @@ def test_a_bad_key_is_a_400_naming_the_header(make_app, value):
     problem = response.get_json()
     assert problem["type"] == "urn:certimatch:problem:invalid-parameter"
     assert problem["parameter"] == "Idempotency-Key"
+
+
+# -- retention -------------------------------------------------------------------------
+
+
+def test_retention_removes_old_bodies_and_keeps_the_log_verifiable(make_app):
+    app = make_app(RETENTION_DAYS="2")
+    client = app.test_client()
+    old = solve(client).get_json()["decision"]
+    recorder = app.extensions["certimatch.recorder"]
+    store, _ = recorder.open()
+    recorded = datetime.fromisoformat(old["recorded_at"])
+    store.clock = lambda: recorded + timedelta(days=2, seconds=1)
+    recorder._pruned_at = None                  # as if the hour between passes had gone by
+    new = solve(client, FRACTIONAL).get_json()["decision"]   # the pass runs after it
+    kept = store.get(old["id"])
+    assert kept is not None and kept.problem is None and kept.answer is None
+    assert kept.pruned_at is not None and kept.decision.to_dict() == old
+    fresh = store.get(new["id"])
+    assert fresh is not None and fresh.problem is not None      # newer than 2 days
+    record = client.get(f"/v1/decisions/{old['id']}").get_json()
+    assert record["problem"] is None and record["answer"] is None
+    result = client.post(f"/v1/decisions/{old['id']}/verify").get_json()
+    assert result["valid"] is True                # leaf and inclusion still hold
+    assert "answer" not in {c["name"] for c in result["checks"]}
+
+
+def test_without_retention_nothing_is_pruned(make_app):
+    app = make_app()
+    client = app.test_client()
+    old = solve(client).get_json()["decision"]
+    recorder = app.extensions["certimatch.recorder"]
+    store, _ = recorder.open()
+    store.clock = lambda: datetime.fromisoformat(old["recorded_at"]) + timedelta(days=3650)
+    solve(client, FRACTIONAL)
+    kept = store.get(old["id"])
+    assert kept is not None and kept.problem is not None
