@@ -17,6 +17,7 @@ from werkzeug.exceptions import HTTPException
 from service.errors import PROBLEM_CONTENT_TYPE, ServiceError, problem_document
 from service.http import auth, encoding, observe
 from service.http.api import api_bp
+from service.http.audit_page import audit_bp
 from service.http.body import json_response
 from service.http.decisions import decisions_bp
 from service.http.pages import pages_bp
@@ -50,6 +51,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.register_blueprint(pages_bp)
     app.register_blueprint(report_bp)
     app.register_blueprint(decisions_bp)
+    app.register_blueprint(audit_bp)
     # Request ids, the request log line and metrics wrap every view, errors included.
     observe.init_app(app, settings.metrics_enabled)
     encoding.init_app(app)

@@ -157,9 +157,12 @@ _ROUTES = {
     "/v1/decisions": "decisions in log order (?after=ID&limit=N&caller=NAME)",
     "/v1/decisions/{decision_id}": "one decision with its problem, answer and inclusion proof",
     "/v1/decisions/{decision_id}/verify": "re-check a stored decision",
+    "/v1/decisions/{decision_id}/report": "the audit report of a stored decision, with the "
+                                          "log's verdict on its record",
+    "/audit": "the decision log for people: newest first, by caller and date, with reports",
     "/": "this page",
 }
-_NAV = {"/v1/openapi.yaml": "OpenAPI document"}
+_NAV = {"/v1/openapi.yaml": "OpenAPI document", "/audit": "decision log"}
 
 
 #: Routes that answer only with a query parameter the page cannot choose.

@@ -68,3 +68,18 @@ def screenshot(browser: str, page: Path, png: Path, profile: Path) -> str:
     return ""
 
 
+
+def dump_dom(browser: str, url: str, profile: Path) -> tuple[str, str]:
+    """Load ``url`` headless and return (the DOM as the browser built it, '') on success,
+    else ('', what went wrong)."""
+    argv = [browser, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
+            "--no-first-run", "--disable-background-networking", "--disable-component-update",
+            "--disable-sync", f"--user-data-dir={profile}", "--dump-dom", url]
+    try:
+        done = subprocess.run(argv, capture_output=True, text=True,
+                              timeout=SCREENSHOT_SECONDS, check=False)
+    except subprocess.TimeoutExpired:
+        return "", f"no page within {SCREENSHOT_SECONDS} s"
+    if done.returncode != 0 or "<html" not in done.stdout:
+        return "", f"exit {done.returncode}: {done.stderr[-1500:]}"
+    return done.stdout, ""
