@@ -9,6 +9,7 @@ from typing import Any
 
 from service.cli.audit_check import AUDIT_CHECK_EPILOG, _cmd_audit_check
 from service.cli.audit_export import _cmd_audit_export, since_argument
+from service.cli.credentials import TOKEN_ENV, token_argument
 from service.settings import ENV_PREFIX
 
 AUDIT_EXPORT_EPILOG = f"""\
@@ -68,7 +69,18 @@ def add_audit(sub: Any, raw: type[argparse.HelpFormatter]) -> None:
         formatter_class=raw, epilog=AUDIT_CHECK_EPILOG,
         description="Check an export of the decision log and name every piece of damage:\n"
         "a changed byte in any record, a dropped, added or reordered record.")
-    check.add_argument("file", metavar="FILE", help="the export; - for standard input")
+    check.add_argument("file", metavar="FILE", nargs="?",
+                       help="the export; - for standard input")
+    remote = check.add_argument_group("the log of a running service, instead of FILE")
+    remote.add_argument("--url", help="the service's URL (its token: --token-file, "
+                        f"--token or ${TOKEN_ENV})")
+    remote.add_argument("--timeout", type=float, default=60.0, metavar="S",
+                        help="seconds to wait for each answer (%(default)g)")
+    token = remote.add_mutually_exclusive_group()
+    token.add_argument("--token", type=token_argument, metavar="TOKEN",
+                       help="bearer token (visible in `ps`: prefer --token-file)")
+    token.add_argument("--token-file", metavar="FILE",
+                       help="read the bearer token from FILE's first line")
     check.add_argument("--public-key", type=_public_key, metavar="KEY",
                        help="the service's Ed25519 public key (base64) the checkpoint must "
                        "be signed with")

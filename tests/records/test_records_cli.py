@@ -221,6 +221,10 @@ def test_usage_errors_exit_1(tmp_path: Path, capsys) -> None:
     assert _run(capsys, "audit", "check", str(tmp_path / "missing.jsonl"))[0] == 1
     assert _run(capsys, "audit", "check", "x", "--public-key", "abc")[0] == 1
     assert _run(capsys, "audit", "export")[0] == 1                   # -o is required
+    code, _, err = _run(capsys, "audit", "check")                    # neither FILE nor --url
+    assert code == 1 and "give an export FILE or --url URL" in err
+    code, _, err = _run(capsys, "audit", "check", "x", "--url", "http://127.0.0.1:9")
+    assert code == 1 and "not both" in err
     (tmp_path / "junk").write_text("not an export\n")
     code, out, _ = _run(capsys, "audit", "check", str(tmp_path / "junk"))
     assert code == 2 and out.startswith("line 1: not the header")
@@ -233,11 +237,13 @@ def test_readme_and_help_give_the_same_exit_codes(capsys) -> None:
     section = readme.split("## What an auditor does", 1)[1].split("\n## ", 1)[0]
     rows = {int(m.group(1)): m.group(2) for m in re.finditer(r"^\| (\d) \| (.*)$", section,
                                                              re.MULTILINE)}
-    assert sorted(rows) == [0, 1, 2]
+    assert sorted(rows) == [0, 1, 2, 4]
     code, out, _ = _run(capsys, "audit", "check", "--help")
     assert code == 0
     assert "0 everything holds; 2 damage was found" in " ".join(out.split())
     assert rows[0].startswith("everything holds") and rows[2].startswith("damage was found")
+    assert "4 the service (--url) could not be reached" in " ".join(out.split())
+    assert rows[4].startswith("`--url`: the service could not be reached")
     for command in (("audit", "export"), ("db", "upgrade")):
         code, out, _ = _run(capsys, *command, "--help")
         assert code == 0 and "exit codes: 0" in out and "; 1 " in out
