@@ -118,10 +118,12 @@ def override_prices(net: Network, flow_of_plan, cert: Certificate, max_work: int
     for p, (extra, _) in paths.items():
         forbid[p] = NONE if extra is None else -r_fwd[p] + extra
     _within(work_of(len(roots), len(multi) + len(alone), res), max_work)
+    budget = [max_work - work_of(len(roots), 0, res), max_work]
     reroutes = {}
     for p in np.concatenate([multi, alone]).tolist():
         k = int(x[p])
-        found = reroute(res, int(arcs.id[p]), int(arcs.tail[p]), int(arcs.head[p]), k)
+        found = reroute(res, int(arcs.id[p]), int(arcs.tail[p]), int(arcs.head[p]), k,
+                        budget)
         reroutes[p] = found
         forbid[p] = NONE if found.extra is None else k * -int(r_fwd[p]) + found.extra
     unit_steps = {p: s for p, (_, s) in paths.items()}

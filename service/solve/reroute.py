@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.sparse.csgraph import dijkstra
 
-from service.errors import OutOfRange
+from service.errors import OutOfRange, TooLarge
 from service.solve.residual import EXACT, Residual
 
 __all__ = ["Reroute", "reroute"]
@@ -47,8 +47,13 @@ class Reroute:
     reached: np.ndarray
 
 
-def reroute(res: Residual, arc_id: int, i: int, j: int, k: int) -> Reroute:
-    """``k`` units from ``i`` to ``j`` in ``res`` without the user arc ``arc_id``."""
+def reroute(res: Residual, arc_id: int, i: int, j: int, k: int,
+            budget: list[int]) -> Reroute:
+    """``k`` units from ``i`` to ``j`` in ``res`` without the user arc ``arc_id``.
+
+    ``budget``: ``[work left, the limit]``, spent at nodes + arcs per Dijkstra; TooLarge naming
+    ``/prices`` when it runs out (a pair may need one augmentation per unit).
+    """
     n = res.n_nodes
     keep = np.flatnonzero(res.arc != arc_id)
     t, h, r = res.tail[keep], res.head[keep], res.reduced[keep]
@@ -72,6 +77,11 @@ def reroute(res: Residual, arc_id: int, i: int, j: int, k: int) -> Reroute:
         if len(sub) and int(sub.reduced.max()) >= EXACT:
             raise OutOfRange("an override price needs distances beyond 2**53; use smaller "
                              "costs")
+        budget[0] -= n + len(sub)
+        if budget[0] < 0:
+            raise TooLarge("/prices: rerouting the used pairs takes more work than the "
+                           "limit (setting MAX_PRICES_WORK); ask for prices on a smaller "
+                           "problem", limit=budget[1], pointer="/prices")
         graph = sub.graph()
         dist, pred = dijkstra(graph.csr, directed=True, indices=i, return_predecessors=True)
         reached = np.isfinite(dist)

@@ -111,3 +111,23 @@ def test_seven_by_seven_assignment():
     want = brute_prices(problem)
     for row in answer["prices"]:
         assert (row["force_delta"], row["forbid_delta"]) == want[(row["from"], row["to"], None)]
+
+
+def test_rerouting_many_units_one_by_one_counts_against_the_cap():
+    # 40 units on a -> t must go around it through 40 arcs of capacity 1: forty
+    # augmentations, each a Dijkstra; a cap that allows the distance rows but not those
+    # forty runs is a 413 naming /prices (common practice, no source: a budget per run)
+    arcs = [{"from": "a", "to": "t", "cost": 0, "capacity": 40}]
+    arcs += [{"from": "a", "to": f"m{k}", "cost": 1, "capacity": 1} for k in range(40)]
+    arcs += [{"from": f"m{k}", "to": "t", "cost": 1, "capacity": 1} for k in range(40)]
+    problem = {"sources": [{"id": "a", "supply": 40}], "nodes": [{"id": f"m{k}"}
+                                                                 for k in range(40)],
+               "sinks": [{"id": "t", "demand": 40}], "arcs": arcs, "prices": True}
+    answer = solve_body(problem, Settings())
+    # forbidding a -> t: every unit takes a two-arc detour of cost 2 (worked by hand)
+    assert answer["prices"][0]["forbid_delta"] == 80
+    from service.errors import TooLarge
+    # the distance rows take 5,418 units here (41 roots x 132 nodes and arcs): 8,000 lets
+    # them through, and the forty runs then exhaust it
+    with pytest.raises(TooLarge, match="rerouting the used pairs"):
+        solve_body(problem, Settings(max_prices_work=8_000))
