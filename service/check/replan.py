@@ -62,8 +62,10 @@ def _pins_breach(net: Network, arc: np.ndarray, x: np.ndarray, rows: object) -> 
 
 
 def _keep_capacity(net: Network) -> np.ndarray:
+    """Keep arc capacities: 0 on an arc the network does not have (a bottleneck's matrix
+    cell above the threshold)."""
     assert net.keep is not None
-    cap = net.keep.amount.astype(np.int64)
+    cap = np.where(net.arc_exists(net.keep.arc), net.keep.amount, 0).astype(np.int64)
     if net.arc_list is not None:
         arcs = net.arc_list
         bounded = arcs.bounded[net.keep.arc]
@@ -145,14 +147,15 @@ def _replan_parts(net: Network, arc: np.ndarray, x: np.ndarray, sent: np.ndarray
     pin = _pin_of(net, arcs.id)
     parts: list[tuple[np.ndarray, ...]] = []
     if net.keep is not None:
-        cap = _keep_capacity(net)
-        kept = _kept(net, arc, x)
-        at = np.searchsorted(arcs.id, net.keep.arc)
+        there = net.arc_exists(net.keep.arc)     # a keep arc of a missing arc carries 0
+        cap = _keep_capacity(net)[there]
+        kept = _kept(net, arc, x)[there]
+        at = np.searchsorted(arcs.id, net.keep.arc[there])
         flow[at] -= kept
         upper[at] -= np.where(bounded[at], cap, 0)
         pin[at] = np.where(pin[at] >= 0, pin[at] - cap, -1)
         k_tail, k_head = arcs.tail[at], arcs.head[at]
-        k_lower = np.where(_pin_of(net, net.keep.arc) >= 0, cap, 0)
+        k_lower = np.where(_pin_of(net, net.keep.arc[there]) >= 0, cap, 0)
         parts.append((k_tail, k_head, arcs.cost[at] - net.keep.penalty, k_lower, cap, kept))
     pinned = pin >= 0
     upper = np.where(pinned, pin, upper)

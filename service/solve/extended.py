@@ -67,8 +67,11 @@ def extend(net: Network, hard_shortfall: int) -> Extended:
     if net.keep is not None:
         keep_arc = net.keep.arc
         keep_tail, keep_head = net.endpoints(keep_arc)
-        keep_cost = net.arc_cost(keep_arc) - net.keep.penalty
-        keep_cap = keep_capacity(net)
+        # an arc the network no longer has (a bottleneck's cell above the threshold) keeps
+        # nothing: capacity 0, and a harmless cost
+        exists = net.arc_exists(keep_arc)
+        keep_cost = np.where(exists, net.arc_cost(keep_arc) - net.keep.penalty, 0)
+        keep_cap = np.where(exists, keep_capacity(net), 0)
         keep_lower = np.where(pinned_flow(net, keep_arc) >= 0, keep_cap, 0)
     parts = [
         ("supply", np.full(len(src), S), src, supply_cost, supply_cap),

@@ -147,3 +147,44 @@ def test_replanning_an_unchanged_day_moves_nothing(seed: int) -> None:
     total = sum(r["flow"] for r in first["allocation"])
     assert answer["changes"] == {"kept": total, "moved": 0, "penalty": 0}
     assert answer["objective"] == first["objective"]
+
+
+def _restricted(problem: dict, limit: float | None) -> dict:
+    """The problem with only the pairs costing at most ``limit`` (none for None)."""
+    out = copy.deepcopy(problem)
+    out["objective"] = "min"
+    if "costs" in out:
+        out["costs"] = [[c if c is not None and limit is not None and c <= limit else None
+                         for c in row] for row in out["costs"]]
+    else:
+        out["arcs"] = [a for a in out["arcs"] if limit is not None and a["cost"] <= limit]
+    return out
+
+
+@pytest.mark.parametrize("seed", range(200))
+def test_bottleneck_with_previous_plan_and_load_costs(seed: int) -> None:
+    """Under "bottleneck" change penalties and load costs are costs of the last stage.
+    Reference from the definitions (issue 13): the least hard shortfall (networkx, above),
+    then a threshold search over the sorted costs, each checked by the reference on the
+    pairs at or below it, then the reference's optimum on the pairs at or below the
+    threshold (no pair at all when no hard demand can be served)."""
+    problem = ref.instance(30000 + seed, ("previous", "load"))
+    problem["objective"] = "bottleneck"
+    whole = ref.reference(_restricted(problem, float("inf")))
+    assert whole is not None
+    hard = sum(t["demand"] for t in problem["sinks"] if "penalty" not in t)
+    if whole[0] == hard:
+        theta, best = None, ref.reference(_restricted(problem, None))
+    else:
+        costs = sorted({c for row in problem.get("costs", []) for c in row if c is not None}
+                       | {a["cost"] for a in problem.get("arcs", [])
+                          if a.get("capacity", 1) != 0})
+        theta = next(c for c in costs
+                     if ref.reference(_restricted(problem, c))[0] == whole[0])
+        best = ref.reference(_restricted(problem, theta))
+    assert best is not None
+    answer = solve_body(copy.deepcopy(problem), SETTINGS)
+    assert answer["certificate"]["bottleneck"]["threshold"] == theta, _show(problem)
+    assert answer["certificate"]["hard_shortfall"] == whole[0]
+    assert 2 * answer["objective"] == best[1], _show(problem)
+    assert verify_body({**problem, "answer": answer}, SETTINGS)["valid"]

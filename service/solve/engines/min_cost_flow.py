@@ -82,9 +82,10 @@ def solve(net: Network, hard_shortfall: int) -> Run | None:
     total = lower.copy()
     total[out["used"]] += out["amount"]
     keep_flow = out["keep"] + ext.lower[keep]
-    if len(keep_flow):
-        position = np.searchsorted(arcs.id, ext.keep_arc)
-        np.add.at(total, position, keep_flow)
+    carried = keep_flow > 0                 # only on arcs the network has
+    if carried.any():
+        position = np.searchsorted(arcs.id, ext.keep_arc[carried])
+        np.add.at(total, position, keep_flow[carried])
     used = np.flatnonzero(total)
     return Run(Flow(arc=arcs.id[used], amount=total[used]))
 
