@@ -17,7 +17,6 @@ import pytest
 from service.cli import main, transport
 from tests.reference import instance
 
-
 #: The answer's decision object: its id and time differ from run to run, so outputs are
 #: compared without it (README, "Determinism": the rest is the same bytes).
 _DECISION = re.compile(r',"decision":\{[^{}]*\}')
