@@ -61,8 +61,14 @@ def _flow_rows(prices: Prices, steps: np.ndarray, amount: np.ndarray | None) -> 
 def price_proof(net: Network, prices: Prices) -> dict[str, Any]:
     """Distance rows and trees to the roots, and how each used pair's units go around it."""
     reroutes = []
-    for p, steps in sorted(prices.unit.items()):
-        reroutes.append({"pair": p, "flow": _flow_rows(prices, steps, None)})
+    units = sorted(prices.unit.items())
+    if units:
+        # all one-unit paths in one pass: a numpy call per pair would cost more than its data
+        steps = np.concatenate([s for _, s in units])
+        rows = _flow_rows(prices, steps, None) if len(steps) else []
+        ends = np.cumsum([len(s) for _, s in units]).tolist()
+        for (p, _), start, stop in zip(units, [0, *ends[:-1]], ends, strict=True):
+            reroutes.append({"pair": p, "flow": rows[start:stop]})
     for p, found in sorted(prices.reroutes.items()):
         labels = np.where(found.reached, found.labels, NONE)
         rows = found.steps
