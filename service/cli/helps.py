@@ -42,6 +42,9 @@ examples:
   certimatch report problem.json --answer answer.json -o report.html
                                             an audit report to open in a browser
   certimatch demo                           start a server and solve two invented scenarios
+  certimatch audit export -o decisions.jsonl && certimatch audit check decisions.jsonl
+                                            take the decision log out and check it
+                                            (exit codes: certimatch audit check --help)
 
 {EXIT_CODES}
 "certimatch COMMAND --help" explains one command. Without --url, solve and verify
