@@ -22,23 +22,35 @@ import numpy as np
 
 from service.check.checks import _Checks
 from service.check.exact import _first, _grid_value, _show
+from service.check.replan import _cut_pins
 from service.network.model import FORBIDDEN, Arcs, Network
 
 
 def _within(net: Network, limit: int | None, *, below: bool = False) -> Network:
     """The network of the pairs costing at most ``limit`` (less than it when ``below``);
-    the others forbidden (a matrix) or given capacity 0 (a list); None: no pair at all."""
+    the others forbidden (a matrix) or given capacity 0 (a list); None: no pair at all.
+    A previous plan's units on the others cannot be kept, and pins on them are left out."""
+    def allowed(cost: np.ndarray) -> np.ndarray:
+        if limit is None:
+            return np.zeros(cost.shape, bool)
+        return (cost < limit) if below else (cost <= limit)
+
+    keep, pins = net.keep, net.pins
+    if keep is not None:
+        on = allowed(net.arc_cost(keep.arc))
+        keep = replace(keep, arc=keep.arc[on], amount=keep.amount[on])
+    if pins is not None:
+        on = allowed(net.arc_cost(pins.arc))
+        pins = replace(pins, arc=pins.arc[on], flow=pins.flow[on], entry=pins.entry[on])
     if net.dense is not None:
-        keep = (np.zeros(net.dense.shape, bool) if limit is None else
-                (net.dense < limit) if below else (net.dense <= limit))
-        return replace(net, dense=np.where(keep, net.dense, FORBIDDEN))
+        return replace(net, keep=keep, pins=pins,
+                       dense=np.where(allowed(net.dense), net.dense, FORBIDDEN))
     arcs = net.arcs
-    keep = (np.zeros(len(arcs), bool) if limit is None else
-            (arcs.cost < limit) if below else (arcs.cost <= limit))
-    return replace(net, arc_list=Arcs(id=arcs.id, tail=arcs.tail, head=arcs.head,
-                                      cost=arcs.cost,
-                                      capacity=np.where(keep, arcs.capacity, 0),
-                                      bounded=arcs.bounded | ~keep))
+    on = allowed(arcs.cost)
+    return replace(net, keep=keep, pins=pins,
+                   arc_list=Arcs(id=arcs.id, tail=arcs.tail, head=arcs.head, cost=arcs.cost,
+                                 capacity=np.where(on, arcs.capacity, 0),
+                                 bounded=arcs.bounded | ~on))
 
 
 def _threshold(net: Network, cert: dict[str, Any], arc: np.ndarray, x: np.ndarray,
@@ -64,7 +76,7 @@ def _threshold(net: Network, cert: dict[str, Any], arc: np.ndarray, x: np.ndarra
         checks.add("bottleneck_threshold", bad, "no hard demand can be served: no pair used")
         checks.add("bottleneck_cut", None if given["cut"] is None else
                    "a cut goes with a threshold only", "no cut needed without a threshold")
-        return _within(net, None)
+        return net if used.any() else _within(net, None)
     theta = _grid_value(given["threshold"], net.cost_scale)
     if theta is None:
         checks.add("bottleneck_threshold", f"threshold {given['threshold']} is not a whole "
@@ -81,9 +93,23 @@ def _threshold(net: Network, cert: dict[str, Any], arc: np.ndarray, x: np.ndarra
         bad = None
     checks.add("bottleneck_threshold", bad,
                f"every pair used costs at most {_show(theta, net.cost_scale)}")
-    checks.add("bottleneck_cut", _cut_below(net, theta, given["cut"], index, shortfall),
-               "no plan on strictly cheaper pairs serves as much hard demand")
-    return _within(net, theta)
+    if _pinned_at(net, theta):
+        checks.add("bottleneck_cut", None, "a pair pinned with flow costs the threshold: "
+                   "no plan uses only cheaper pairs")
+    else:
+        checks.add("bottleneck_cut", _cut_below(net, theta, given["cut"], index, shortfall),
+                   "no plan on strictly cheaper pairs serves as much hard demand")
+    # an arc used above the threshold has failed already; the duals are then read on the
+    # whole network, where every used arc is
+    return net if over is not None else _within(net, theta)
+
+
+def _pinned_at(net: Network, theta: int) -> bool:
+    """Some pair pinned with flow costs ``theta`` or more: every plan uses it."""
+    if net.pins is None:
+        return False
+    pinned = net.pins.flow > 0
+    return bool(pinned.any() and (net.arc_cost(net.pins.arc[pinned]) >= theta).any())
 
 
 def _cut_below(net: Network, theta: int, cut: dict[str, Any] | None, index: dict[str, int],
@@ -101,13 +127,17 @@ def _cut_below(net: Network, theta: int, cut: dict[str, Any] | None, index: dict
     hard = side[off:] & ~net.soft
     demand = int(net.demand[hard].sum())
     capacity = int(net.supply[side[: net.n_sources]].sum())
-    if cheaper.dense is not None:
+    if cheaper.dense is not None and cheaper.pins is None:
         rows, cols = ~side[: net.n_sources], side[off:]
         if cols.any() and (cheaper.dense[np.ix_(rows, cols)] != FORBIDDEN).any():
             return "a cheaper matrix cell (unbounded) enters the cut's sink side"
     else:
         arcs = cheaper.arcs
         enters = ~side[arcs.tail] & side[arcs.head]
+        if cheaper.pins is not None:
+            # a pin is an arc with lower = upper bound: it carries its pin either way
+            enters[np.searchsorted(arcs.id, cheaper.pins.arc)] = False
+            capacity += _cut_pins(cheaper, side)
         open_arc = _first(enters & ~arcs.bounded)
         if open_arc is not None:
             return (f"unbounded cheaper arc {net.ids[arcs.tail[open_arc]]} -> "

@@ -19,15 +19,15 @@ adds nothing to the dual objective), so flows and answers read the same on eithe
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, replace
 
 import numpy as np
 
+from service.errors import InvalidProblem, PinsInfeasible
 from service.network.model import FORBIDDEN, Arcs, Network
-from service.solve import isolation
-from service.solve.dispatch import Solution, _least_shortfall_arrays, solve
-from service.solve.feasibility import Shortfall, reject_if_short
+from service.solve.dispatch import Solution, _stage_one, solve
+from service.solve.feasibility import Shortfall, check_bounded, reject_if_short
+from service.solve.pinned import check_pin_capacity
 
 __all__ = ["Bottleneck", "restricted", "solve_bottleneck"]
 
@@ -46,33 +46,46 @@ class Bottleneck:
 
 def restricted(net: Network, limit: int | None, *, strict: bool = False) -> Network:
     """``net`` with only the pairs costing at most ``limit`` (below it when ``strict``);
-    ``limit`` None keeps no pair."""
+    ``limit`` None keeps no pair. A previous plan's units on the other pairs cannot be kept
+    (as on a pair that no longer exists), and pins on them are dropped (they pin 0 units:
+    a pinned pair with flow is used, so the threshold is at least its cost)."""
+    def out_of(cost: np.ndarray) -> np.ndarray:
+        if limit is None:
+            return np.ones(len(cost), bool)
+        return (cost >= limit) if strict else (cost > limit)
+
+    keep, pins = net.keep, net.pins
+    if keep is not None:
+        stay = ~out_of(net.arc_cost(keep.arc))
+        keep = replace(keep, arc=keep.arc[stay], amount=keep.amount[stay])
+    if pins is not None:
+        stay = ~out_of(net.arc_cost(pins.arc))
+        pins = replace(pins, arc=pins.arc[stay], flow=pins.flow[stay], entry=pins.entry[stay])
     if net.dense is not None:
         dense = net.dense.copy()
-        if limit is None:
-            dense[:] = FORBIDDEN
-        else:
-            dense[(dense >= limit) if strict else (dense > limit)] = FORBIDDEN
-        return replace(net, dense=dense)
+        dense[out_of(dense.reshape(-1)).reshape(dense.shape)] = FORBIDDEN
+        return replace(net, dense=dense, keep=keep, pins=pins)
     arcs = net.arcs
-    if limit is None:
-        out = np.ones(len(arcs), bool)
-    else:
-        out = (arcs.cost >= limit) if strict else (arcs.cost > limit)
-    return replace(net, arc_list=Arcs(
+    out = out_of(arcs.cost)
+    return replace(net, keep=keep, pins=pins, arc_list=Arcs(
         id=arcs.id, tail=arcs.tail, head=arcs.head, cost=arcs.cost,
         capacity=np.where(out, 0, arcs.capacity), bounded=arcs.bounded | out))
 
 
-def _shortfall(net: Network) -> Shortfall:
-    """Stage 1 of ``net`` through the runner, as :func:`dispatch._stage_one` runs it."""
-    n = net.n_user + 2
-    out = isolation.run(_least_shortfall_arrays, net,
-                        work=n * n * max(1, math.isqrt(len(net.arcs) + n)))
-    if "out_of_range" in out:
-        from service.errors import OutOfRange
-        raise OutOfRange(str(out["out_of_range"].item()))
-    return Shortfall(int(out["amount"]), out["sink_side"].astype(bool))
+def _shortfall(net: Network) -> Shortfall | None:
+    """Stage 1 of ``net`` (:func:`dispatch._stage_one`, pins included); None when the
+    pins cannot be routed on its pairs at all."""
+    try:
+        return _stage_one(net)
+    except PinsInfeasible:
+        return None
+
+
+def _pinned_top(net: Network) -> int | None:
+    """The largest cost of a pair pinned with flow (a used pair in every plan), or None."""
+    if net.pins is None or not (net.pins.flow > 0).any():
+        return None
+    return int(net.arc_cost(net.pins.arc[net.pins.flow > 0]).max())
 
 
 def _costs(net: Network) -> np.ndarray:
@@ -101,9 +114,13 @@ def _cheapest_in(net: Network) -> int:
 
 def solve_bottleneck(net: Network) -> Bottleneck:
     """The three stages; raises Infeasible when unmet hard demand is rejected."""
-    whole = _shortfall(net)
+    check_bounded(net)
+    if net.pins is not None:
+        check_pin_capacity(net)
+    whole = _stage_one(net)            # raises PinsInfeasible: no plan at all
     reject_if_short(net, whole)
-    if whole.amount == net.hard_demand:
+    top = _pinned_top(net)
+    if whole.amount == net.hard_demand and top is None:
         # nothing hard can be served: the empty set of pairs is the least largest cost
         within = restricted(net, None)
         solution = solve(within)
@@ -114,9 +131,12 @@ def solve_bottleneck(net: Network) -> Bottleneck:
         # every hard sink is then served, over some arc into it: the search starts at the
         # largest of their cheapest incoming costs
         lo = min(hi, int(np.searchsorted(costs, _cheapest_in(net))))
+    if top is not None:                 # pinned pairs are used pairs
+        lo = max(lo, min(hi, int(np.searchsorted(costs, top))))
 
     def serves(k: int) -> bool:
-        return _shortfall(restricted(net, int(costs[k]))).amount == whole.amount
+        found = _shortfall(restricted(net, int(costs[k])))
+        return found is not None and found.amount == whole.amount
 
     # galloping up from the lower bound first: the networks probed stay small when the
     # threshold is near it (the common case), then bisection (O(log k) probes either way)
@@ -134,7 +154,13 @@ def solve_bottleneck(net: Network) -> Bottleneck:
         else:
             lo = mid + 1
     theta = int(costs[lo])
-    below = _shortfall(restricted(net, theta, strict=True))
+    # a pin with flow at the threshold proves it by itself (no plan avoids that pair)
+    below = None if top == theta else _shortfall(restricted(net, theta, strict=True))
+    if below is None and top != theta:
+        raise InvalidProblem([{"pointer": "/fixed", "detail":
+                               "the pins cannot be routed on the pairs cheaper than the "
+                               "bottleneck threshold, and that proof is not offered: send "
+                               "the problem without objective bottleneck, or other pins"}])
     within = restricted(net, theta)
     solution = solve(within)
     if solution.shortfall.amount != whole.amount:
@@ -144,21 +170,31 @@ def solve_bottleneck(net: Network) -> Bottleneck:
 
 def threshold_certificate(net: Network, result: Bottleneck) -> dict:
     """``certificate.bottleneck`` of the answer: the threshold in the caller's units and the
-    cut of the network of strictly cheaper pairs (README, "The certificate")."""
-    if result.threshold is None or result.below is None:
+    cut of the network of strictly cheaper pairs (README, "The certificate"); no cut when
+    a pair pinned with flow costs the threshold (that pin is the proof)."""
+    theta = result.threshold
+    if theta is None:
         return {"threshold": None, "cut": None}
-    cheaper = restricted(net, result.threshold, strict=True)
+    shown = theta if net.cost_scale == 1 else theta / net.cost_scale
+    if result.below is None:
+        return {"threshold": shown, "cut": None}
+    cheaper = restricted(net, theta, strict=True)
     side = result.below.sink_side
     off = net.sink_offset
     sinks = np.flatnonzero(side[off:] & ~net.soft)
     capacity = int(net.supply[side[: net.n_sources]].sum())
-    if net.arc_list is not None:
+    if net.arc_list is not None or cheaper.pins is not None:
         arcs = cheaper.arcs
-        crossing = ~side[arcs.tail] & side[arcs.head]
-        capacity += int(arcs.capacity[crossing & arcs.bounded].sum())
-    theta = result.threshold
+        crossing = ~side[arcs.tail] & side[arcs.head] & arcs.bounded
+        if cheaper.pins is not None:
+            # a pin is an arc with lower = upper bound: it carries its pin either way
+            crossing[np.searchsorted(arcs.id, cheaper.pins.arc)] = False
+            tail, head = cheaper.endpoints(cheaper.pins.arc)
+            capacity += (int(cheaper.pins.flow[~side[tail] & side[head]].sum())
+                         - int(cheaper.pins.flow[side[tail] & ~side[head]].sum()))
+        capacity += int(arcs.capacity[crossing].sum())
     return {
-        "threshold": theta if net.cost_scale == 1 else theta / net.cost_scale,
+        "threshold": shown,
         "cut": {"sink_side": [net.ids[i] for i in np.flatnonzero(side).tolist()],
                 "sinks": [net.ids[off + i] for i in sinks.tolist()],
                 "demand": int(net.demand[sinks].sum()), "capacity": capacity},

@@ -60,13 +60,10 @@ def solve_body(body: Any, settings: Settings,
             # prices and alternatives are proven on the network without bounds or
             # parallel arcs
             asked = [key for key in ("prices", "alternatives") if data.get(key)]
-            if net.bottleneck and net.pins is not None:
-                asked.append("objective")
             if asked:
                 raise InvalidProblem([{"pointer": f"/{key}", "detail":
                                        f"{key} {data.get(key)!r} cannot be asked together "
-                                       "with " + ("fixed (yet)" if key == "objective" else
-                                                  "fixed, previous or load_costs (yet)")}
+                                       "with fixed, previous or load_costs (yet)"}
                                       for key in asked])
         if net.bottleneck:
             if data.get("prices"):

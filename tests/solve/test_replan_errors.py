@@ -41,8 +41,6 @@ def _errors(solve: Any, body: dict[str, Any]) -> list[dict[str, str]]:
      "cannot be asked together"),
     ({"previous": {"allocation": [], "change_penalty": 1}, "alternatives": 2},
      "/alternatives", "cannot be asked together"),
-    ({"fixed": [{"from": "north", "to": "oven", "flow": 1}], "objective": "bottleneck"},
-     "/objective", "cannot be asked together with fixed"),
     ({"previous": {"allocation": [{"from": "north", "to": "oven", "flow": 1},
                                   {"from": "north", "to": "oven", "flow": 2}],
                    "change_penalty": 1}}, "/previous/allocation/1", "same pair"),
