@@ -6,7 +6,7 @@ For every instance of the seeded families (generators.py) it measures, interleav
 measurements round by round so that a noisy neighbour hits all of them alike:
 
 1. the service end to end over HTTP through a real gunicorn (deploy/gunicorn.conf.py,
-   2 workers), once per wire form (``FORMS``: the body as the request records);
+   2 workers), once per wire form (``FORMS``: records, columnar, columnar gzipped);
 2. the service's phases in-process on the same bytes (parse, pipeline phases, serialise);
 3. the bare script a user would write (floors.py): orjson parse + numpy arrays + the scipy
    or OR-Tools call, no certificate; and on the same arrays every candidate bare floor
@@ -35,6 +35,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import zlib
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -56,6 +57,10 @@ import requests  # noqa: E402
 from floors import BenchError, timed  # noqa: E402
 from report import ALL_PHASES, machine  # noqa: E402
 from servers import Gunicorn, ServerFailed  # noqa: E402
+
+from schemas.columns import as_columns  # noqa: E402
+from schemas.problem import TABLES  # noqa: E402
+from service.cli.transport import GZIP_LEVEL  # noqa: E402
 
 __all__ = ["BenchError", "log", "machine", "serving"]   # what worst.py uses
 
@@ -90,9 +95,29 @@ class Form:
     headers: dict[str, str]
 
 
+def _columnar(req: dict[str, Any]) -> bytes:
+    """The request with its tables as objects of arrays (README, "The columnar form")."""
+    return orjson.dumps({k: as_columns(v) if k in TABLES else v for k, v in req.items()})
+
+
+def _columnar_gzip(req: dict[str, Any]) -> bytes:
+    """The columnar body gzip-compressed as the CLI sends it (service.cli.transport)."""
+    packer = zlib.compressobj(GZIP_LEVEL, zlib.DEFLATED, 16 + zlib.MAX_WBITS)
+    return packer.compress(_columnar(req)) + packer.flush()
+
+
+#: Plain bytes both ways: requests would otherwise ask for a gzip answer.
+PLAIN_HEADERS = {**JSON_HEADERS, "Accept-Encoding": "identity"}
+
 #: The forms measured over HTTP, in table order; "record" is the one the in-process
-#: phases, the script and the floors read.
-FORMS: tuple[Form, ...] = (Form("record", orjson.dumps, JSON_HEADERS),)
+#: phases, the script and the floors read. "columnar+gzip" sends the columnar body
+#: gzip-compressed and takes a gzip answer (requests inflates it, inside the time).
+FORMS: tuple[Form, ...] = (
+    Form("record", orjson.dumps, PLAIN_HEADERS),
+    Form("columnar", _columnar, PLAIN_HEADERS),
+    Form("columnar+gzip", _columnar_gzip,
+         {**JSON_HEADERS, "Content-Encoding": "gzip", "Accept-Encoding": "gzip"}),
+)
 
 
 # --------------------------------------------------------------------------- instances
@@ -595,6 +620,9 @@ def parse_args(argv: list[str] | None) -> argparse.Namespace:
     p.add_argument("--families", default="A,B,C,D,E",
                    help="comma-separated subset of A,B,C,D,E (default all)")
     p.add_argument("--quick", action="store_true", help="small sizes only, for iterating")
+    p.add_argument("--instances", default="",
+                   help="comma-separated instance names to keep, each the start of a name "
+                   "(\"D 150k,D 1M,E\"; default all of the families)")
     p.add_argument("--out", default=str(HERE / "results"), help="results folder")
     p.add_argument("--repeats", type=int, default=None,
                    help="rounds per instance (default: 5, fewer for slow instances)")
@@ -622,6 +650,9 @@ def main(argv: list[str] | None = None) -> int:
     out.mkdir(parents=True, exist_ok=True)
     started = time.monotonic()
     instances = plan(families, args.quick)
+    wanted = [w.strip() for w in args.instances.split(",") if w.strip()]
+    if wanted:
+        instances = [i for i in instances if any(i.key.startswith(w) for w in wanted)]
     notes: list[str] = []
     # the largest A body (~78 MB at n = 4000) is over the default 64 MiB limit: raise the
     # limit for this server only, and say so, instead of measuring a 413
