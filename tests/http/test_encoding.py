@@ -18,6 +18,7 @@ import pytest
 
 from service.app import create_app
 from service.http.encoding import MIN_GZIP_BYTES
+from tests.http.test_columnar import without_decision
 from tests.reference import instance
 from tests.wire.test_columns import columnar
 
@@ -64,14 +65,16 @@ def gigabyte_of_zeros() -> bytes:
 def test_a_compressed_body_gets_the_answer_of_the_plain_one(client, coding, pack):
     plain = _post(client, _raw())
     assert plain.status_code == 200
-    assert _post(client, pack(_raw()), **{"Content-Encoding": coding}).data == plain.data
+    packed = _post(client, pack(_raw()), **{"Content-Encoding": coding})
+    assert without_decision(packed.data) == without_decision(plain.data)
 
 
 def test_a_gzip_body_of_several_members_is_one_body(client):
     # RFC 1952, 2.2: a gzip file is a series of members; gunzip reads them as one
     raw = _raw()
     body = gzip.compress(raw[:100]) + gzip.compress(raw[100:1000]) + gzip.compress(raw[1000:])
-    assert _post(client, body, **{"Content-Encoding": "gzip"}).data == _post(client, raw).data
+    packed = _post(client, body, **{"Content-Encoding": "gzip"})
+    assert without_decision(packed.data) == without_decision(_post(client, raw).data)
 
 
 @pytest.mark.parametrize("path", ["/v1/solve", "/v1/verify", "/v1/report"])
@@ -82,7 +85,7 @@ def test_every_post_takes_a_gzip_columnar_body(client, path):
     plain = _post(client, _raw(full), path)
     packed = _post(client, gzip.compress(_raw(full)), path, **{"Content-Encoding": "gzip"})
     assert plain.status_code == packed.status_code == 200
-    assert packed.data == plain.data
+    assert without_decision(packed.data) == without_decision(plain.data)
 
 
 @pytest.mark.parametrize("coding", ["br", "compress", "zstd", "gzip, gzip", "deflate, gzip"])
@@ -152,7 +155,7 @@ def test_an_answer_is_gzip_when_the_client_takes_it(client, accept):
     assert packed.headers["Content-Encoding"] == "gzip"
     assert "Accept-Encoding" in packed.headers["Vary"]
     assert int(packed.headers["Content-Length"]) == len(packed.data) < len(plain.data)
-    assert gzip.decompress(packed.data) == plain.data
+    assert without_decision(gzip.decompress(packed.data)) == without_decision(plain.data)
 
 
 @pytest.mark.parametrize("accept", [None, "identity", "gzip;q=0", "br", "*;q=0"])
