@@ -87,6 +87,15 @@ def figures(problem: dict[str, Any]) -> dict[str, Any]:
     again = solve_body(sick, settings)
     before, after = _pairs(plain), _pairs(again)
     others = {p for p in before if p[0] != busiest}
+    kept_plans = {}
+    for penalty in (20, 1000):
+        replanned = solve_body({**sick, "previous": {"allocation": plain["allocation"],
+                                                     "change_penalty": penalty}}, settings)
+        kept_plans[penalty] = {
+            "other_assignments_moved": len(others - _pairs(replanned)),
+            "changes": replanned["changes"],
+            "travel": replanned["objective"] - replanned["changes"]["penalty"],
+            "unmet": len(replanned["unmet"])}
     return {
         "min": {"objective": plain["objective"], "longest": _longest(problem, plain),
                 "unmet": len(plain["unmet"])},
@@ -97,7 +106,9 @@ def figures(problem: dict[str, Any]) -> dict[str, Any]:
                  "their_tickets": len(before) - len(others),
                  "other_assignments_moved": len(others - after),
                  "objective": again["objective"],
-                 "reasons": sorted({u["reason"] for u in again["unmet"]})},
+                 "unmet": len(again["unmet"]),
+                 "reasons": sorted({u["reason"] for u in again["unmet"]}),
+                 "with_previous": kept_plans},
     }
 
 
