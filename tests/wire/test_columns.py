@@ -298,3 +298,17 @@ def test_a_data_array_travels_like_the_records_data():
     record = answer_or_errors(body)
     assert {p for p, _ in record[1]} == {"/nodes/0/data", "/sinks/0/data"}
     assert answer_or_errors(columnar(body)) == mapped(record)
+
+
+def test_load_costs_travel_as_an_array_of_lists():
+    # a field whose value is a list per record is one array of lists in the columnar form
+    body = problems("transportation", range(1))[1]          # the arc version
+    body["sources"] = [{**s, "load_costs": [0, 2 * i, 5 * i + 1]} if i % 2 else s
+                       for i, s in enumerate(body["sources"])]
+    record = answer_or_errors(body)
+    assert isinstance(record, bytes), record
+    assert answer_or_errors(columnar(body)) == record
+    body["sources"][1] = {**body["sources"][1], "load_costs": [3, 1]}   # decreasing: refused
+    record = answer_or_errors(body)
+    assert [p for p, _ in record[1]] == ["/sources/1/load_costs/1"]
+    assert answer_or_errors(columnar(body)) == mapped(record)
