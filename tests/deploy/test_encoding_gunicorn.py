@@ -16,7 +16,7 @@ from pathlib import Path
 
 import pytest
 import requests
-from servers import gunicorn
+from servers import gunicorn, without_decision
 
 from tests.http.test_columnar import without_decision
 from tests.http.test_encoding import PROBLEM, gigabyte_of_zeros
