@@ -18,7 +18,6 @@ import pytest
 import requests
 from servers import gunicorn, without_decision
 
-from tests.http.test_columnar import without_decision
 from tests.http.test_encoding import PROBLEM, gigabyte_of_zeros
 from tests.wire.test_columns import columnar
 
