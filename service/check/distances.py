@@ -167,13 +167,13 @@ def rows_differ(g: ResidualArcs, roots: np.ndarray, dist: np.ndarray,
                     f"{g.tail[e]} a shorter path than its distance")
         finite = (d < INF)
         finite[at, rho] = False
-        k, v = np.nonzero(finite)
-        w = nx_[k, v]
+        kk, v = np.nonzero(finite)
+        w = nx_[kk, v]
         r = g.lookup(v, np.maximum(w, 0))
         bad = (w < 0) | (r < 0)
-        bad[~bad] = d[k, v][~bad] != r[~bad] + d[k[~bad], w[~bad]]
+        bad[~bad] = d[kk, v][~bad] != r[~bad] + d[kk[~bad], w[~bad]]
         if bad.any():
-            return (f"row of root {rho[k[bad][0]]}: node {v[bad][0]} is not one tight "
+            return (f"row of root {rho[kk[bad][0]]}: node {v[bad][0]} is not one tight "
                     f"residual arc from its next node")
         up = np.where(nx_ >= 0, nx_, np.arange(n)[None, :])
         up[at, rho] = rho

@@ -196,29 +196,30 @@ def _unit_paths(res: Residual, dist: np.ndarray, succ: np.ndarray, row: np.ndarr
     finite[finite] = value[best[finite]] != np.iinfo(np.int64).max
     for q in np.flatnonzero(~finite).tolist():
         out[int(unit[q])] = (None, np.zeros((0, 3), np.int64))
-    q = np.flatnonzero(finite)
-    b = best[q]
+    found = np.flatnonzero(finite)
+    b = best[found]
     start, goal, rows = i[b], u[b], r_u[b]
     # walk every path at once, one step per round, toward its root u
     graph = res.graph()
     steps: list[np.ndarray] = []
-    cur, visits_head = start.copy(), np.zeros(len(q), bool)
+    cur, visits_head = start.copy(), np.zeros(len(found), dtype=np.bool_)
     live = cur != goal
     while live.any():
         at = np.flatnonzero(live)
         nxt = succ[rows[at], cur[at]]
         e = graph.best[graph.entry(cur[at], nxt)]
         steps.append(np.stack([at, cur[at], nxt, e], axis=1))
-        visits_head[at] |= nxt == head[q][at]
+        visits_head[at] = visits_head[at] | (nxt == head[found][at])
         cur[at] = nxt
         live = cur != goal
     last = cand_arc[b]
-    steps.append(np.stack([np.arange(len(q)), res.tail[last], res.head[last], last], axis=1))
+    steps.append(np.stack([np.arange(len(found)), res.tail[last], res.head[last], last],
+                          axis=1))
     every = np.concatenate(steps) if steps else np.zeros((0, 4), np.int64)
     every = every[np.argsort(every[:, 0], kind="stable")]
-    bounds = np.searchsorted(every[:, 0], np.arange(len(q) + 1))
+    bounds = np.searchsorted(every[:, 0], np.arange(len(found) + 1))
     alone = []
-    for k, p in enumerate(unit[q].tolist()):
+    for k, p in enumerate(unit[found].tolist()):
         if visits_head[k]:
             alone.append(p)
         else:

@@ -60,7 +60,7 @@ def _flow_rows(prices: Prices, steps: np.ndarray, amount: np.ndarray | None) -> 
 
 def price_proof(net: Network, prices: Prices) -> dict[str, Any]:
     """Distance rows and trees to the roots, and how each used pair's units go around it."""
-    reroutes = []
+    reroutes: list[dict[str, Any]] = []
     units = sorted(prices.unit.items())
     if units:
         # all one-unit paths in one pass: a numpy call per pair would cost more than its data
@@ -71,10 +71,10 @@ def price_proof(net: Network, prices: Prices) -> dict[str, Any]:
             reroutes.append({"pair": p, "flow": rows[start:stop]})
     for p, found in sorted(prices.reroutes.items()):
         labels = np.where(found.reached, found.labels, NONE)
-        rows = found.steps
-        reroutes.append({"pair": p, "flow": _flow_rows(prices, rows[:, [0, 1, 3]], rows[:, 2]),
+        flow = found.steps
+        reroutes.append({"pair": p, "flow": _flow_rows(prices, flow[:, [0, 1, 3]], flow[:, 2]),
                          "labels": _nullable(net, labels)})
-    reroutes.sort(key=lambda r: r["pair"])
+    reroutes.sort(key=lambda r: int(r["pair"]))
     return {
         "roots": prices.roots.tolist(),
         "distances": [_nullable(net, d) for d in prices.dist],
