@@ -16,9 +16,11 @@ exports of the same log are byte for byte equal:
    bodies are the stored problem and answer. A stored body that is not canonical JSON
    (it was tampered with) is given as ``"problem_b64"`` / ``"answer_b64"``, its raw bytes
    in base64, instead.
+   Records stored past the log's head (no append writes one: they were added by hand)
+   follow, so that the check names them.
 3. a last line ``{"checkpoint": {"size", "root_sha256", "signature", "public_key",
    "key_id"}}``: the signed checkpoint the export was taken at; every exported record
-   lies below its size.
+   an append wrote lies below its size.
 
 The check (``certimatch audit check``) recomputes every leaf from its decision fields and
 compares it with the stored one, recomputes both digests from the bodies, re-verifies
@@ -33,6 +35,7 @@ from __future__ import annotations
 import base64
 import binascii
 import hashlib
+from collections import deque
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from typing import IO, Any
@@ -50,6 +53,8 @@ __all__ = ["EXPORT_NAME", "AuditReport", "Reverify", "check", "export", "export_
            "verify_decision"]
 
 EXPORT_NAME = "certimatch-decision-log"
+#: Most records past the checkpoint's size named one by one.
+_NAMED_PAST_SIZE = 1000
 
 #: Re-checks a stored (problem, answer) pair, both parsed JSON: (valid, detail). The
 #: service passes its independent verifier; the records package never imports it.
@@ -66,6 +71,8 @@ def export_lines(store: LogReader, signer: Signer, since: str | None = None
     yield canonical_json({"export": EXPORT_NAME, "version": 1, "start": start,
                           "frontier": frontier})
     for record in store.records(start, checkpoint.size):
+        yield canonical_json(_record_line(record))
+    for record in store.beyond_head():          # added by hand: the check names them
         yield canonical_json(_record_line(record))
     yield canonical_json({"checkpoint": checkpoint.to_dict()})
 
@@ -127,6 +134,8 @@ def check(lines: Iterable[bytes | str], reverify: Reverify | None = None,
         return report
     start = expected = frontier.size
     checkpoint = None
+    # The last records seen, to name those past the checkpoint once its size is read.
+    last: deque[tuple[Any, str]] = deque(maxlen=_NAMED_PAST_SIZE)
     for number, line in numbered:
         if checkpoint is not None:
             report.findings.append(f"line {number}: more lines after the checkpoint")
@@ -154,9 +163,15 @@ def check(lines: Iterable[bytes | str], reverify: Reverify | None = None,
             report.findings.append(f"{where}: its decision fields do not hash to its stored "
                                    "leaf: the record was changed")
         frontier.append(leaf)
+        last.append((decision.log_index, where))
         report.records += 1
         report.findings += [f"{where}: {f}" for f in _bodies(obj, decision, reverify, report)]
     _close(checkpoint, frontier, report, public_key, start)
+    if isinstance(report.size, int):
+        report.findings += [f"{where}: past the {report.size} records of the signed "
+                            "checkpoint: the record was added to the log"
+                            for index, where in last
+                            if isinstance(index, int) and index >= report.size]
     return report
 
 

@@ -194,6 +194,17 @@ class LogReader:
                 yield _stored(row)
             start = int(rows[-1].log_index) + 1
 
+    def beyond_head(self, limit: int = MAX_PAGE) -> list[StoredDecision]:
+        """Records at or past the head's size. An append moves the head in the same
+        transaction as it writes its record, so these were added by hand; one statement,
+        so one snapshot of both tables even under concurrent appends."""
+        c = decision_records.c
+        size = select(log_head.c.size).where(log_head.c.id == 1).scalar_subquery()
+        query = (select(decision_records).where(c.log_index >= size)
+                 .order_by(c.log_index).limit(limit))
+        with self._transaction() as conn:
+            return [_stored(r) for r in conn.execute(query).all()]
+
     def _within(self, conn: Connection, size: int) -> None:
         current = self._head(conn)[0]
         if not 0 <= size <= current:

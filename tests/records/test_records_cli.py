@@ -182,6 +182,34 @@ def test_two_swapped_rows_are_named(ids: list[str], service_store: DecisionStore
     assert lines[2].startswith("the records do not make up the signed tree")
 
 
+def test_a_row_added_in_the_database_is_named(ids: list[str], service_store: DecisionStore,
+                                              tmp_path: Path, capsys) -> None:
+    # A forged decision appended by hand, with a leaf that fits its fields: only the
+    # signed checkpoint (and the head it was made from) knows the log had 10 records.
+    from service.records.model import Decision
+
+    last = service_store.get(ids[-1])
+    assert last is not None
+    forged = Decision(**{**last.decision.to_dict(), "id": "f0f0f0f0-0000-4000-8000-000000000000",
+                         "log_index": RECORDS})
+    with service_store.engine.begin() as conn:
+        conn.execute(text(
+            "INSERT INTO decision_records (log_index, id, recorded_at, caller, input_sha256, "
+            "answer_sha256, service_version, leaf_sha256, mode, problem, answer) VALUES "
+            "(:i, :id, :t, :c, :p, :a, :v, :leaf, 'full', :pb, :ab)"),
+            {"i": RECORDS, "id": forged.id, "t": forged.recorded_at, "c": forged.caller,
+             "p": forged.input_sha256, "a": forged.answer_sha256,
+             "v": forged.service_version, "leaf": forged.leaf_hash(), "pb": last.problem,
+             "ab": last.answer})
+    code, lines = _audit(capsys, tmp_path)
+    assert code == 2
+    assert lines[:2] == [
+        f"the export holds {RECORDS + 1} records but the checkpoint covers {RECORDS} "
+        "records: records were dropped or added",
+        f"line {RECORDS + 2}, record {RECORDS} (id {forged.id}): past the {RECORDS} records "
+        "of the signed checkpoint: the record was added to the log"]
+
+
 def test_an_added_record_in_the_export_is_named(ids: list[str], service_store: DecisionStore,
                                                 tmp_path: Path, capsys) -> None:
     export = tmp_path / "decisions.jsonl"
