@@ -88,7 +88,7 @@ output:
                   reading, and the verdict of /v1/verify on the answer (exit 1 if
                   it is not valid)
   --format csv    the allocation as rows from,to,flow,cost with a header row
-  --unmet-csv FILE     unmet demand as rows id,amount,demand,hard
+  --unmet-csv FILE     unmet demand as rows id,amount,demand,hard,reason,reduced_cost
   --unused-csv FILE    unused supply as rows id,amount,supply
   --summary-json FILE  objective, units routed, hard and soft demand unmet,
                   unused supply, the exit code and its meaning, the input's

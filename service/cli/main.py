@@ -174,7 +174,8 @@ def _add_solve(sub: Any, raw: type[argparse.HelpFormatter]) -> None:
     out.add_argument("--out-dir", metavar="DIR",
                      help="with several inputs: write one answer file per input here")
     out.add_argument("--unmet-csv", metavar="FILE",
-                     help="write unmet demand to FILE: id,amount,demand,hard")
+                     help="write unmet demand to FILE: id,amount,demand,hard,reason,"
+                     "reduced_cost")
     out.add_argument("--unused-csv", metavar="FILE",
                      help="write unused supply to FILE: id,amount,supply")
     out.add_argument("--summary-json", metavar="FILE",

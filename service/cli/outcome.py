@@ -68,7 +68,8 @@ def _hard(entry: Mapping[str, Any], sink: Mapping[str, Any] | None) -> bool | No
 
 def unmet_rows(problem: Mapping[str, Any] | None, answer: Mapping[str, Any]
                ) -> list[dict[str, Any]]:
-    """``{id, amount, demand, hard}`` per unmet sink; None where the problem is unknown."""
+    """``{id, amount, demand, hard, reason, reduced_cost}`` per unmet sink; None where the
+    problem (or the answer) does not say."""
     sinks = {str(s.get("id")): s for s in records((problem or {}).get("sinks", []))
              if isinstance(s, dict)}
     rows = []
@@ -76,7 +77,8 @@ def unmet_rows(problem: Mapping[str, Any] | None, answer: Mapping[str, Any]
         sink = sinks.get(str(entry.get("id")))
         rows.append({"id": entry.get("id"), "amount": entry.get("amount", 0),
                      "demand": None if sink is None else sink.get("demand", 1),
-                     "hard": _hard(entry, sink)})
+                     "hard": _hard(entry, sink), "reason": entry.get("reason"),
+                     "reduced_cost": entry.get("reduced_cost")})
     return rows
 
 

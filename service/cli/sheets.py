@@ -23,7 +23,7 @@ from typing import Any
 from service.report.style import format_number
 
 ALLOCATION_COLUMNS = ("from", "to", "flow", "cost")
-UNMET_COLUMNS = ("id", "amount", "demand", "hard")
+UNMET_COLUMNS = ("id", "amount", "demand", "hard", "reason", "reduced_cost")
 UNUSED_COLUMNS = ("id", "amount", "supply")
 #: First column of the unmet and unused sheets of a batch: the input the row belongs to.
 INPUT_COLUMN = "input"
@@ -61,7 +61,8 @@ def allocation_csv(answer: Mapping[str, Any], safe: bool = True) -> str:
 
 def unmet_csv(rows: Iterable[tuple[str | None, Mapping[str, Any]]], safe: bool = True,
               batch: bool = False) -> str:
-    """Unmet demand, ``id,amount,demand,hard`` (``input`` first in a batch).
+    """Unmet demand, ``id,amount,demand,hard,reason,reduced_cost`` (``input`` first in a
+    batch); ``reason`` is why the sink waits, ``reduced_cost`` given with ``penalty`` only.
 
     ``rows`` are (input name, row of :func:`service.cli.outcome.unmet_rows`).
     """
@@ -69,7 +70,9 @@ def unmet_csv(rows: Iterable[tuple[str | None, Mapping[str, Any]]], safe: bool =
     return _sheet(header, (
         ([spreadsheet_text(name or "", safe)] if batch else [])
         + [spreadsheet_text(str(r["id"]), safe), format_number(r["amount"]),
-           "" if r["demand"] is None else format_number(r["demand"]), _flag(r["hard"])]
+           "" if r["demand"] is None else format_number(r["demand"]), _flag(r["hard"]),
+           spreadsheet_text(str(r.get("reason") or ""), safe),
+           "" if r.get("reduced_cost") is None else format_number(r["reduced_cost"])]
         for name, r in rows))
 
 

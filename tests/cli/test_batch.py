@@ -70,8 +70,9 @@ def test_a_folder_gives_one_answer_file_per_input_and_the_worst_code(capsys, tmp
         ("a-good.json", 0), ("b-short.csv", 3), ("c-refused.json", 2), ("d-invalid.json", 1)]
     assert records[0]["files"] == {"answer": str(out_dir / "a-good.answer.json")}
     assert list(csv.reader(io.StringIO(unmet.read_text()))) == [
-        ["input", "id", "amount", "demand", "hard"],
-        [str(inbox / "b-short.csv"), "stop-2", "1", "1", "true"]]
+        ["input", "id", "amount", "demand", "hard", "reason", "reduced_cost"],
+        # van-a's one slot serves stop-1: stop-2 waits for capacity
+        [str(inbox / "b-short.csv"), "stop-2", "1", "1", "true", "capacity", ""]]
     # stdout: the summary table; stderr: one line per input.
     lines = out.splitlines()
     assert lines[0].split() == ["input", "exit", "outcome", "objective", "routed",

@@ -55,8 +55,10 @@ def test_a_day_with_nothing_routable_exits_3_and_keeps_the_whole_answer(capsys, 
     assert code == 3
     assert out == ""
     assert _rows(plan) == [["from", "to", "flow", "cost"]]
-    assert _rows(unmet) == [["id", "amount", "demand", "hard"], ["fridge", "2", "2", "true"],
-                            ["oven", "1", "1", "false"]]
+    # every cell is null: no source reaches either sink (README "Why a sink waits")
+    assert _rows(unmet) == [["id", "amount", "demand", "hard", "reason", "reduced_cost"],
+                            ["fridge", "2", "2", "true", "no-eligible-source", ""],
+                            ["oven", "1", "1", "false", "no-eligible-source", ""]]
     assert _rows(unused) == [["id", "amount", "supply"], ["north", "2", "2"],
                              ["south", "1", "1"]]
     doc = json.loads(summary.read_text())
@@ -169,7 +171,8 @@ def test_a_hard_flag_on_unmet_rows_is_used_as_given(capsys, tmp_path, monkeypatc
     code, _, _ = _run(capsys, "solve", _write(tmp_path, problem), "--local",
                       "--unmet-csv", str(unmet))
     assert code == 3
-    assert _rows(unmet)[1] == ["y", "1", "1", "true"]
+    # a's one slot goes to x: y's only server is full
+    assert _rows(unmet)[1] == ["y", "1", "1", "true", "capacity", ""]
 
 
 def test_the_decision_object_is_kept_in_json_and_summary(capsys, tmp_path, monkeypatch):
