@@ -68,7 +68,9 @@ def _pair_arcs(net: Network, rows: Any, vanish: bool, where: str,
         col = heads - net.sink_offset
         cell = known & (tails < net.n_sources) & (col >= 0) & (col < net.n_sinks)
         ids = np.where(cell, tails * net.n_sinks + col, 0)
-        hit = cell & (net.dense.reshape(-1)[ids] != FORBIDDEN)
+        hit = cell.copy()
+        if cell.any():                  # an empty day has no cell to read
+            hit &= net.dense.reshape(-1)[ids] != FORBIDDEN
         out[hit] = ids[hit]
         count[hit] = 1
         bad_arc = given

@@ -2,9 +2,18 @@
 
 from __future__ import annotations
 
+import copy
+import json
+import random
 from typing import Any
 
 import pytest
+
+from service.errors import ServiceError
+from service.settings import Settings
+from service.solve.pipeline import solve_body, verify_body
+
+SETTINGS = Settings()
 
 BASE: dict[str, Any] = {
     "sources": [{"id": "north", "supply": 2}, {"id": "south", "supply": 1}],
@@ -129,3 +138,77 @@ def test_previous_plan_with_vanished_pairs_is_accepted(solve: Any, verify: Any) 
     assert answer["objective"] == 35 + 20 + 200
     status, verdict = verify(body, answer)
     assert status == 200 and verdict["valid"], verdict
+
+
+@pytest.mark.parametrize("costs", [[], [[]]])
+def test_empty_day_with_a_previous_plan(solve: Any, verify: Any, costs: list) -> None:
+    """No sources (or no sinks): every previous unit is on a vanished pair, so all move
+    (common practice, no source: an empty day is answered, README "Using it")."""
+    body = {"sources": [{"id": "north"}] if costs == [[]] else [], "sinks": [] if costs == [[]]
+            else [{"id": "fridge"}], "costs": costs,
+            "previous": {"allocation": [{"from": "north", "to": "fridge", "flow": 2}],
+                         "change_penalty": 1.5},
+            "fixed": []}
+    status, answer = solve(body)
+    assert status == 200, answer
+    assert answer["changes"] == {"kept": 0, "moved": 2, "penalty": 3}
+    status, verdict = verify(body, answer)
+    assert status == 200 and verdict["valid"], verdict
+
+
+def _extreme(seed: int) -> dict[str, Any]:
+    """A small problem with re-planning controls and numbers up to the request bounds."""
+    r = random.Random(seed)
+    ns, nt = r.randint(0, 5), r.randint(0, 5)
+    big = r.choice([1, 10**3, 10**9])
+    sinks = []
+    for j in range(nt):
+        sink: dict[str, Any] = {"id": f"t{j}", "demand": r.randint(0, big)}
+        if r.random() < 0.5:
+            sink["penalty"] = r.choice([0, 1.5, 10**9])
+        sinks.append(sink)
+    p: dict[str, Any] = {"sources": [{"id": f"s{i}", "supply": r.randint(0, big)}
+                                     for i in range(ns)],
+                         "sinks": sinks, "objective": r.choice(["min", "max", "bottleneck"])}
+    if r.random() < 0.5:
+        p["costs"] = [[r.choice([None, r.randint(-10**9, 10**9), r.random()])
+                       for _ in range(nt)] for _ in range(ns)]
+    else:
+        ids = [f"s{i}" for i in range(ns)] + [f"t{j}" for j in range(nt)]
+        arcs = []
+        for _ in range(r.randint(0, 8) if ids else 0):
+            a, b = r.choice(ids), r.choice(ids)
+            if a != b:
+                arc: dict[str, Any] = {"from": a, "to": b, "cost": r.randint(-5, 10**9)}
+                if r.random() < 0.5:
+                    arc["capacity"] = r.randint(0, big)
+                arcs.append(arc)
+        p["arcs"] = arcs
+    if ns and nt and r.random() < 0.6 and p["objective"] != "bottleneck":
+        p["fixed"] = [{"from": f"s{r.randrange(ns)}", "to": f"t{r.randrange(nt)}",
+                       "flow": r.randint(0, big)} for _ in range(r.randint(1, 3))]
+    if r.random() < 0.6:
+        p["previous"] = {"allocation": [{"from": f"s{r.randrange(6)}", "to": f"t{r.randrange(6)}",
+                                         "flow": r.randint(0, big)}
+                                        for _ in range(r.randint(0, 4))],
+                         "change_penalty": r.choice([0, 0.25, 10**9])}
+    for s in p["sources"]:
+        if r.random() < 0.5:
+            s["load_costs"] = sorted(r.choice([r.randint(-10**9, 10**9), r.random()])
+                                     for _ in range(r.randint(1, 5)))
+    return p
+
+
+@pytest.mark.parametrize("seed", range(200))
+def test_extreme_numbers_are_answered_or_refused(seed: int) -> None:
+    """Never a 500 (project rule, README "Errors"): every problem is answered with an answer
+    the verifier accepts, or refused with a 4xx; duplicate pairs among the pins or the
+    previous rows are allowed to be refused."""
+    problem = _extreme(seed)
+    try:
+        answer = solve_body(copy.deepcopy(problem), SETTINGS)
+    except ServiceError as e:
+        assert e.status < 500, e.detail
+        return
+    verdict = verify_body({**problem, "answer": json.loads(json.dumps(answer))}, SETTINGS)
+    assert verdict["valid"], [c for c in verdict["checks"] if not c["passed"]]
