@@ -66,9 +66,6 @@ def solve_body(body: Any, settings: Settings,
                                        "with fixed, previous or load_costs (yet)"}
                                       for key in asked])
         if net.bottleneck:
-            if data.get("prices"):
-                raise InvalidProblem([{"pointer": "/prices", "detail": "override prices are "
-                                       "for min and max; objective bottleneck has none"}])
             answer = _solve_bottleneck(net, clock)
             clock.run("self_verify", self_check, net, answer)
             return answer
