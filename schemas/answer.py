@@ -5,6 +5,7 @@ from __future__ import annotations
 from marshmallow import Schema, fields, validate
 
 from schemas.fields import IdList, Number, NumberMap, StrictBoolean
+from schemas.frontier import FrontierList
 from schemas.numbers import MAX_ANSWER_VALUE
 from schemas.problem import ProblemSchema
 from schemas.tables import RecordList
@@ -135,12 +136,13 @@ class PairSchema(Schema):
 
     from_ = fields.String(required=True, data_key="from")
     to = fields.String(required=True)
-    arc = Number(**_COUNT)
+    arc = fields.Integer(metadata={"bound": MAX_ANSWER_VALUE})
 
 
 class BoundSchema(PairSchema):
     """The flows a cell allows on one pair: ``min`` to ``max`` (null: no upper bound)."""
 
+    arc = Number(**_COUNT)
     min = Number(required=True, **_COUNT)
     max = Number(required=True, allow_none=True, **_COUNT)
 
@@ -201,9 +203,10 @@ class PartitionSchema(Schema):
     the cells left unexpanded."""
 
     requested = Number(required=True, **_COUNT)
-    branches = fields.List(fields.List(fields.Nested(PairSchema), allow_none=True),
-                           required=True)
-    frontier = fields.List(fields.Nested(FrontierSchema), required=True)
+    branches = fields.List(RecordList(PairSchema, allow_none=True), required=True)
+    frontier = FrontierList(FrontierSchema, required=True)
+
+
 _HEX64 = validate.Regexp(r"^[0-9a-f]{64}$", error="must be 64 lower-case hex digits")
 
 

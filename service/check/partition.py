@@ -24,7 +24,7 @@ import numpy as np
 
 from service.check import cells, frontier
 from service.check.checks import _Checks
-from service.check.exact import _grid_value, _grid_values, _show
+from service.check.exact import _first, _grid_value, _grid_values, _ids_to_index, _show
 from service.check.flows import _allocation
 from service.network.model import Network
 
@@ -95,7 +95,7 @@ def _check(net: Network, answer: dict[str, Any], requested: int | None, verify: 
                "every alternative is a plan serving the same hard demand")
 
     costs = [cells.cost_of(tab, f) for f in flows]
-    branches = [None if b is None else _positions(net, b, index, f"partition/branches/{j}")
+    branches = [None if b is None else _branch(net, b, index, f"partition/branches/{j}")
                 for j, b in enumerate(part["branches"])]
     if len(branches) != len(flows):
         raise _Refused("alternatives_cells", f"partition.branches has {len(branches)} "
@@ -244,6 +244,35 @@ def _positions(net: Network, pairs: list[dict[str, Any]], index: dict[str, int],
     if len(np.unique(out)) != len(out):
         raise _Refused("alternatives_cells", f"{where}: a pair is named twice")
     return out
+
+
+def _branch(net: Network, rows: Any, index: dict[str, int], where: str) -> np.ndarray:
+    """Positions in ``net.arcs`` of a branch list read in bulk (a Table of pairs)."""
+    arcs = net.arcs
+    tails = _ids_to_index(rows.columns["from"], index)
+    heads = _ids_to_index(rows.columns["to"], index)
+    given = rows.present["arc"] if "arc" in rows.present else np.zeros(len(rows), bool)
+    if net.arc_list is None:
+        col = heads - net.sink_offset
+        ok = (tails >= 0) & (tails < net.n_sources) & (col >= 0) & (col < net.n_sinks) & ~given
+        ident = np.where(ok, tails * net.n_sinks + col, -1)
+        pos = np.minimum(np.searchsorted(arcs.id, ident), max(len(arcs) - 1, 0))
+        ok &= (arcs.id[pos] == ident) if len(arcs) else False
+    else:
+        pos = np.where(given, rows.columns["arc"], -1) if len(rows) else np.zeros(0, np.int64)
+        inside = (pos >= 0) & (pos < len(arcs))
+        safe = np.where(inside, pos, 0)
+        ok = given & inside & (arcs.tail[safe] == tails) & (arcs.head[safe] == heads) \
+            if len(arcs) else np.zeros(len(rows), bool)
+    bad = _first(~ok)
+    if bad is not None:
+        raise _Refused("alternatives_cells", f"{where}/{bad}: no allowed pair "
+                       f"{rows.columns['from'][bad]} -> {rows.columns['to'][bad]}"
+                       + ("" if net.arc_list is None else " with that arc index"))
+    pos = np.asarray(pos, np.int64)
+    if len(np.unique(pos)) != len(pos):
+        raise _Refused("alternatives_cells", f"{where}: a pair is named twice")
+    return pos
 
 
 def _child(lo: list[np.ndarray], hi: list[np.ndarray], flows: list[np.ndarray],

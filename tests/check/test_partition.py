@@ -173,3 +173,29 @@ def test_bounds_in_bulk_are_the_bounds_cell_by_cell(seed, monkeypatch):
     monkeypatch.setattr(frontier, "bounds", lambda *args: None)
     assert [_failed(problem, 4, answer), _failed(problem, 4, forged)] == bulk
     assert bulk[0] == []
+
+
+@pytest.mark.parametrize(("field", "value"), [("side", "left"), ("parent", True),
+                                              ("bound", "7"), ("distances", [1])])
+def test_a_malformed_frontier_record_is_named(field, value):
+    # The frontier is read in bulk; a record it cannot read goes to the row schema, which
+    # names the field by JSON Pointer (RFC 6901) like every other malformed answer.
+    from service.errors import InvalidProblem
+
+    answer = _answer(MATRIX, 2)
+    answer["partition"]["frontier"][1][field] = value
+    with pytest.raises(InvalidProblem) as e:
+        verify_body({**MATRIX, "alternatives": 2, "answer": answer}, Settings())
+    pointers = [err["pointer"] for err in e.value.errors]
+    assert pointers == [f"/answer/partition/frontier/1/{field}"]
+
+
+def test_a_malformed_branch_pair_is_named():
+    from service.errors import InvalidProblem
+
+    answer = _answer(MATRIX, 2)
+    answer["partition"]["branches"][0][0]["from"] = 3
+    with pytest.raises(InvalidProblem) as e:
+        verify_body({**MATRIX, "alternatives": 2, "answer": answer}, Settings())
+    assert [err["pointer"] for err in e.value.errors] == \
+        ["/answer/partition/branches/0/0/from"]
