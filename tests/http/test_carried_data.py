@@ -37,6 +37,8 @@ def test_data_changes_nothing_but_comes_back(solve: Any, verify: Any, family: st
         sent = {row["id"]: row["data"] for name in ("sources", "nodes", "sinks")
                 for row in carried.get(name, []) if "data" in row}
         assert a2.pop("data", {}) == sent
+        # each answer has a decision of its own (another id, time and input digest)
+        assert a1.pop("decision")["id"] != a2.pop("decision")["id"]
         assert a1 == a2
         status, verdict = verify(carried, {**a2, "data": sent})
         assert status == 200 and verdict["valid"]
