@@ -456,7 +456,8 @@ def test_the_same_shortfall_without_reject_is_answered(client):
     assert resp.status_code == 200
     answer = resp.get_json()
     assert answer["certificate"]["hard_shortfall"] == 3
-    assert answer["unmet"] == [{"id": "Y", "amount": 3, "hard": True}]
+    # Y's only way in is full: it waits for capacity (README "Why a sink waits")
+    assert answer["unmet"] == [{"id": "Y", "amount": 3, "hard": True, "reason": "capacity"}]
 
 
 # -- no bad input gives 500 -------------------------------------------------------------------
