@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from marshmallow import Schema, fields, validate
 
 from schemas.fields import IdList, Number, NumberMap, StrictBoolean
@@ -128,7 +130,7 @@ class CertificateSchema(Schema):
 #: more, than the plan's (README, "Ranked alternatives").
 SIDES = ("below", "above")
 VIRTUAL_NODES = ("super_source", "super_sink", "hard_pool")
-_COUNT = {"kind": "count", "bound": MAX_ANSWER_VALUE}
+_COUNT: dict[str, Any] = {"kind": "count", "bound": MAX_ANSWER_VALUE}
 
 
 class PairSchema(Schema):
@@ -136,7 +138,7 @@ class PairSchema(Schema):
 
     from_ = fields.String(required=True, data_key="from")
     to = fields.String(required=True)
-    arc = fields.Integer(metadata={"bound": MAX_ANSWER_VALUE})
+    arc: fields.Field = fields.Integer(metadata={"bound": MAX_ANSWER_VALUE})
 
 
 class BoundSchema(PairSchema):
