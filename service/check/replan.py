@@ -118,7 +118,8 @@ def _changes_differ(net: Network, changes: dict | None, arc: np.ndarray, x: np.n
         return (f"changes reports {changes['kept']} kept and {changes['moved']} moved; "
                 f"recomputed {kept} and {moved}")
     if grid(changes["penalty"]) != penalty:          # type: ignore[operator]
-        return f"changes reports penalty {changes['penalty']}, recomputed otherwise"
+        return (f"changes reports penalty {changes['penalty']}, recomputed "
+                f"{_show(penalty, net.cost_scale)}")
     return None
 
 
