@@ -683,6 +683,9 @@ def main(argv: list[str] | None = None) -> int:
     results: list[dict[str, Any]] = doc["instances"]
     with tempfile.TemporaryDirectory(prefix="certimatch-bench-") as tmp:
         folder = Path(tmp)
+        # the decision store of the server (every 200 is recorded, as deployed) goes to
+        # the run's temporary folder, never into ./certimatch-data of the repository
+        env = {**env, "CERTIMATCH_DATA_DIR": str(folder / "data")}
         with serving("service.app:create_app()", "/healthz", folder, env) as srv:
             small = orjson.dumps(gen.dense_assignment(10, seed=10))
             for _ in range(4):   # both workers import lazily on their first solves

@@ -241,7 +241,8 @@ def main(argv: list[str] | None = None) -> int:
             f" {a}" for a in (argv if argv is not None else sys.argv[1:])),
         "machine": bench.machine(), "load_start": os.getloadavg(), "results": []}
     with tempfile.TemporaryDirectory(prefix="certimatch-worst-") as tmp, \
-            bench.serving("service.app:create_app()", "/healthz", Path(tmp), {}) as srv:
+            bench.serving("service.app:create_app()", "/healthz", Path(tmp),
+                          {"CERTIMATCH_DATA_DIR": str(Path(tmp) / "data")}) as srv:
         for name, make in instances:
             doc["results"].append(measure(name, make, srv.base + "/v1/solve", Path(tmp), args))
     doc["load_end"] = os.getloadavg()
