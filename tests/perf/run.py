@@ -627,6 +627,8 @@ def parse_args(argv: list[str] | None) -> argparse.Namespace:
     p.add_argument("--repeats", type=int, default=None,
                    help="rounds per instance (default: 5, fewer for slow instances)")
     p.add_argument("--no-throughput", action="store_true", help="skip the wrk comparison")
+    p.add_argument("--record", default="full", choices=("full", "digest", "off"),
+                   help="the server's CERTIMATCH_RECORD (default full, as deployed)")
     p.add_argument("--no-alternatives", action="store_true",
                    help="skip scipy linprog and networkx (minutes on the large instances)")
     p.add_argument("--warm-gib", type=float, default=16,
@@ -685,7 +687,8 @@ def main(argv: list[str] | None = None) -> int:
         folder = Path(tmp)
         # the decision store of the server (every 200 is recorded, as deployed) goes to
         # the run's temporary folder, never into ./certimatch-data of the repository
-        env = {**env, "CERTIMATCH_DATA_DIR": str(folder / "data")}
+        env = {**env, "CERTIMATCH_DATA_DIR": str(folder / "data"),
+               "CERTIMATCH_RECORD": args.record}
         with serving("service.app:create_app()", "/healthz", folder, env) as srv:
             small = orjson.dumps(gen.dense_assignment(10, seed=10))
             for _ in range(4):   # both workers import lazily on their first solves
