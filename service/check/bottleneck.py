@@ -21,8 +21,8 @@ from typing import Any
 import numpy as np
 
 from service.check.checks import _Checks
+from service.check.duals import cut_bound, cut_reported
 from service.check.exact import _first, _grid_value, _show
-from service.check.replan import _cut_pins
 from service.network.model import FORBIDDEN, Arcs, Network
 
 
@@ -114,43 +114,16 @@ def _pinned_at(net: Network, theta: int) -> bool:
 
 def _cut_below(net: Network, theta: int, cut: dict[str, Any] | None, index: dict[str, int],
                shortfall: int) -> str | None:
-    """What is wrong with the cut below the threshold, or None."""
+    """What is wrong with the cut below the threshold, or None: on the network of the pairs
+    strictly cheaper than the threshold it must prove more than ``shortfall`` short."""
     if cut is None:
         return "a threshold needs the cut that proves no cheaper one serves as much"
     cheaper = _within(net, theta, below=True)
-    side = np.zeros(net.n_user, bool)
-    for name in cut["sink_side"]:
-        if name not in index:
-            return f"the cut names unknown id {name!r}"
-        side[index[name]] = True
-    off = net.sink_offset
-    hard = side[off:] & ~net.soft
-    demand = int(net.demand[hard].sum())
-    capacity = int(net.supply[side[: net.n_sources]].sum())
-    if cheaper.dense is not None and cheaper.pins is None:
-        rows, cols = ~side[: net.n_sources], side[off:]
-        if cols.any() and (cheaper.dense[np.ix_(rows, cols)] != FORBIDDEN).any():
-            return "a cheaper matrix cell (unbounded) enters the cut's sink side"
-    else:
-        arcs = cheaper.arcs
-        enters = ~side[arcs.tail] & side[arcs.head]
-        if cheaper.pins is not None:
-            # a pin is an arc with lower = upper bound: it carries its pin either way
-            enters[np.searchsorted(arcs.id, cheaper.pins.arc)] = False
-            capacity += _cut_pins(cheaper, side)
-        open_arc = _first(enters & ~arcs.bounded)
-        if open_arc is not None:
-            return (f"unbounded cheaper arc {net.ids[arcs.tail[open_arc]]} -> "
-                    f"{net.ids[arcs.head[open_arc]]} enters the cut's sink side")
-        capacity += int(arcs.capacity[enters].sum())
+    fault, demand, capacity, hard_in = cut_bound(cheaper, cut, index)
+    if fault is not None:
+        return f"on the cheaper pairs: {fault}"
     if demand - capacity <= shortfall:
         return (f"on the cheaper pairs the cut's hard sinks need {demand} and {capacity} "
                 f"reaches them: that proves {max(0, demand - capacity)} short, not more "
                 f"than {shortfall}")
-    named = {net.ids[off + i] for i in np.flatnonzero(hard).tolist()}
-    if set(cut["sinks"]) != named or len(cut["sinks"]) != len(named):
-        return "the cut's sinks are not the hard sinks on its sink side"
-    if (cut["demand"], cut["capacity"]) != (demand, capacity):
-        return (f"the cut reports demand {cut['demand']} and capacity {cut['capacity']}, "
-                f"recomputed {demand} and {capacity}")
-    return None
+    return cut_reported(cheaper, cut, demand, capacity, hard_in)

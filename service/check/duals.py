@@ -77,14 +77,20 @@ def _pinned_mask(net: Network) -> np.ndarray | None:
     return mask
 
 
-def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
-                 shortfall: int) -> str | None:
+def cut_bound(net: Network, cut: dict[str, Any], index: dict[str, int]
+              ) -> tuple[str | None, int, int, np.ndarray]:
+    """What a cut proves on ``net``: (a fault, or None; the hard demand on its sink side;
+    the capacity into that side, pins included; which sinks are its hard sinks).
+
+    Shared by the shortfall cut and the bottleneck's cut (on the network of the cheaper
+    pairs): the same arithmetic, held to different claims.
+    """
     side = np.zeros(net.n_user, bool)
+    off = net.sink_offset
     for id_ in cut["sink_side"]:
         if id_ not in index:
-            return f"the cut names unknown id {id_!r}"
+            return f"the cut names unknown id {id_!r}", 0, 0, side[off:]
         side[index[id_]] = True
-    off = net.sink_offset
     hard_in = side[off:] & ~net.soft
     demand = int(net.demand[hard_in].sum())
     capacity = int(net.supply[side[: net.n_sources]].sum())
@@ -92,7 +98,7 @@ def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
     if net.dense is not None and pinned is None:
         outside, inside = ~side[: net.n_sources], side[off:]
         if inside.any() and (net.dense[np.ix_(outside, inside)] != FORBIDDEN).any():
-            return "an unbounded matrix cell crosses the cut"
+            return "an unbounded matrix cell crosses the cut", demand, capacity, hard_in
     else:
         arcs = net.arcs
         crossing = ~side[arcs.tail] & side[arcs.head]
@@ -103,11 +109,16 @@ def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
         open_arc = _first(crossing & ~arcs.bounded)
         if open_arc is not None:
             return (f"unbounded arc {net.ids[arcs.tail[open_arc]]} -> "
-                    f"{net.ids[arcs.head[open_arc]]} crosses the cut")
+                    f"{net.ids[arcs.head[open_arc]]} crosses the cut", demand, capacity,
+                    hard_in)
         capacity += int(arcs.capacity[crossing].sum())
-    if demand - capacity != shortfall:
-        return (f"hard sinks on the sink side need {demand}, arcs into it carry {capacity}: "
-                f"that proves {max(0, demand - capacity)} short, not {shortfall}")
+    return None, demand, capacity, hard_in
+
+
+def cut_reported(net: Network, cut: dict[str, Any], demand: int, capacity: int,
+                 hard_in: np.ndarray) -> str | None:
+    """Whether the cut names its hard sinks and reports the recomputed figures."""
+    off = net.sink_offset
     sinks = {net.ids[off + i] for i in np.flatnonzero(hard_in).tolist()}
     if set(cut["sinks"]) != sinks or len(cut["sinks"]) != len(sinks):
         return "the cut's sinks are not the hard sinks on its sink side"
@@ -115,6 +126,17 @@ def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
         return (f"the cut reports demand {cut['demand']} and capacity {cut['capacity']}, "
                 f"recomputed {demand} and {capacity}")
     return None
+
+
+def _cut_differs(net: Network, cut: dict[str, Any], index: dict[str, int],
+                 shortfall: int) -> str | None:
+    fault, demand, capacity, hard_in = cut_bound(net, cut, index)
+    if fault is not None:
+        return fault
+    if demand - capacity != shortfall:
+        return (f"hard sinks on the sink side need {demand}, arcs into it carry {capacity}: "
+                f"that proves {max(0, demand - capacity)} short, not {shortfall}")
+    return cut_reported(net, cut, demand, capacity, hard_in)
 
 
 def _virtual_arcs(net: Network, unmet: np.ndarray, sent: np.ndarray, shortfall: int,
