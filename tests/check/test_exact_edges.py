@@ -9,26 +9,12 @@ and optima with networkx (``exact_optimum``). The service is reached only throug
 from __future__ import annotations
 
 import copy
-import os
 from fractions import Fraction
 
 import pytest
 from exact_http import PROBLEM, assert_agree, failed_detail, post, service_verdict, solved
 from exact_optimum import optimum
 from forgeries import with_number
-
-from service.app import create_app
-
-
-@pytest.fixture(scope="module")
-def client():
-    with pytest.MonkeyPatch.context() as mp:
-        for name in list(os.environ):
-            # a setting left in the shell (the session's temporary store stays)
-            if name.startswith("CERTIMATCH_") and name != "CERTIMATCH_DATA_DIR":
-                mp.delenv(name)
-        yield create_app({"TESTING": True}).test_client()
-
 
 # -- an empty day: no sinks, or no sources, is an answer, not an error ----------------------
 

@@ -12,7 +12,6 @@
 from __future__ import annotations
 
 import copy
-import os
 from fractions import Fraction
 
 import pytest
@@ -21,18 +20,8 @@ from exact_optimum import optimum
 from exact_problems import FAMILIES, instance
 from exact_reference import check_answer, decimal, read_problem
 
-from service.app import create_app
-
 SEEDS = range(25)
 
-
-@pytest.fixture(scope="module")
-def client():
-    with pytest.MonkeyPatch.context() as mp:
-        for name in list(os.environ):
-            if name.startswith("CERTIMATCH_") and name != "CERTIMATCH_DATA_DIR":
-                mp.delenv(name)
-        yield create_app({"TESTING": True}).test_client()
 
 
 @pytest.mark.parametrize("family", sorted(FAMILIES))

@@ -15,7 +15,6 @@ its acceptance of honest answers, are the controls of every class.
 from __future__ import annotations
 
 import copy
-import os
 import random
 from fractions import Fraction
 
@@ -48,20 +47,9 @@ from forgeries_wrap import free_lunch, unreachable_served, wrapped_row_cost
 from hypothesis import Phase, given, settings
 from hypothesis import strategies as st
 
-from service.app import create_app
-
 seeds = st.integers(0, 10**6)
 families = st.sampled_from(sorted(FAMILIES))
 
-
-@pytest.fixture(scope="module")
-def client():
-    with pytest.MonkeyPatch.context() as mp:
-        for name in list(os.environ):
-            # a setting left in the shell (the session's temporary store stays)
-            if name.startswith("CERTIMATCH_") and name != "CERTIMATCH_DATA_DIR":
-                mp.delenv(name)
-        yield create_app({"TESTING": True}).test_client()
 
 
 # -- controls: honest answers pass, dearer flows and forged certificates fail ------------
