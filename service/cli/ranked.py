@@ -5,23 +5,16 @@ from __future__ import annotations
 from typing import Any
 
 from service.cli.text import _num, _table
+from service.report.ranked import Pair, changed_pairs, plan_flows
 
 #: Changed pairs named per plan before the rest is counted.
 _NAMED = 4
 
 
-def _flows(plan: dict[str, Any]) -> dict[tuple[str, str, Any], int]:
-    return {(str(r["from"]), str(r["to"]), r.get("arc")): r["flow"]
-            for r in plan["allocation"] if r["flow"]}
-
-
-def _difference(base: dict, other: dict) -> str:
+def _difference(base: dict[Pair, Any], other: dict[Pair, Any]) -> str:
     """The pairs whose flow differs: ``+a→x`` taken up, ``-a→y`` dropped, ``a→z 2→3``."""
     words = []
-    for key in sorted(set(base) | set(other), key=lambda k: (base.get(k, 0) > 0, k[:2])):
-        before, after = base.get(key, 0), other.get(key, 0)
-        if before == after:
-            continue
+    for key, before, after in changed_pairs(base, other):
         pair = f"{key[0]}→{key[1]}" + ("" if key[2] is None else f"#{key[2]}")
         if before == 0:
             words.append(f"+{pair}" + ("" if after == 1 else f" ×{after}"))
@@ -41,14 +34,14 @@ def alternatives_lines(problem: dict[str, Any] | None, answer: dict[str, Any]) -
         return []
     maximize = (problem or {}).get("objective") == "max"
     asked = (answer.get("partition") or {}).get("requested", len(alts))
-    base = _flows(answer)
+    base = plan_flows(answer)
     best = answer["objective"]
     rows = [("plan", "objective", "lost" if maximize else "extra", "differs from the optimum")]
     rows.append(("optimum", _num(best), "", ""))
     for j, alt in enumerate(alts, start=1):
         extra = best - alt["objective"] if maximize else alt["objective"] - best
         rows.append((f"#{j}", _num(alt["objective"]), f"+{_num(round(extra, 6))}",
-                     _difference(base, _flows(alt))))
+                     _difference(base, plan_flows(alt))))
     lines = [f"next-best plans: {len(alts)} of {asked} asked, each proved the best of its "
              "cell (certified k-best)"]
     lines += _table(rows, frozenset({1, 2}))

@@ -18,17 +18,29 @@ _PARTITION_CHECKS = ("alternatives_requested", "alternatives_plans", "alternativ
 _NAMED = 6
 
 
-def _flows(plan: Mapping[str, Any]) -> dict[tuple[str, str, Any], Any]:
+#: A pair of a plan: (from, to, arc index or None).
+Pair = tuple[str, str, Any]
+
+
+def plan_flows(plan: Mapping[str, Any]) -> dict[Pair, Any]:
+    """The pairs a plan uses, with their flows."""
     return {(str(r.get("from")), str(r.get("to")), r.get("arc")): r.get("flow", 0)
             for r in plan.get("allocation", []) if r.get("flow")}
 
 
-def _difference(base: Mapping, other: Mapping) -> str:
+def changed_pairs(base: Mapping[Pair, Any], other: Mapping[Pair, Any]
+                  ) -> list[tuple[Pair, Any, Any]]:
+    """(pair, flow before, flow after) of every pair whose flow differs between two plans'
+    :func:`plan_flows`: pairs taken up first, then by ids. The report and the command line
+    write these in their own words."""
+    keys = sorted(set(base) | set(other), key=lambda k: (base.get(k, 0) > 0, k[:2]))
+    return [(key, base.get(key, 0), other.get(key, 0)) for key in keys
+            if base.get(key, 0) != other.get(key, 0)]
+
+
+def _difference(base: Mapping[Pair, Any], other: Mapping[Pair, Any]) -> str:
     words = []
-    for key in sorted(set(base) | set(other), key=lambda k: (base.get(k, 0) > 0, k[:2])):
-        before, after = base.get(key, 0), other.get(key, 0)
-        if before == after:
-            continue
+    for key, before, after in changed_pairs(base, other):
         pair = f"{key[0]} \u2192 {key[1]}" + ("" if key[2] is None else f" (arc {key[2]})")
         if not before:
             words.append(f"+ {pair}" + ("" if after == 1 else f" \u00d7{_num(after)}"))
@@ -52,14 +64,14 @@ def alternatives_section(answer: Mapping[str, Any], checks: Sequence[Mapping[str
         and any(c.get("name") == "partition_bounds" for c in checks)
     asked = (answer.get("partition") or {}).get("requested", len(alts))
     best = answer.get("objective", 0)
-    base = _flows(answer)
+    base = plan_flows(answer)
     rows = [["optimum", _esc(_num(best)), "", ""]]
     for j, alt in enumerate(alts, start=1):
         value = alt.get("objective", 0)
         extra = best - value if maximize else value - best
         cell = alt.get("cell", {})
         rows.append([f"#{j}", _esc(_num(value)), _esc(f"+{_num(round(extra, 6))}"),
-                     _esc(_difference(base, _flows(alt)))
+                     _esc(_difference(base, plan_flows(alt)))
                      + f'<br><span class="note">cell: child {_esc(cell.get("branch"))} '
                      f'({_esc(cell.get("side"))}) of plan {_esc(cell.get("parent"))}, '
                      f'{len(cell.get("bounds", []))} pairs bounded</span>'])
